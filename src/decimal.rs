@@ -1,0 +1,153 @@
+//! Strict decimal parsing for input files.
+//!
+//! Accepted: ASCII digits with at most one `.` and at least one digit,
+//! optionally a leading `-` where the caller allows negatives. Refused, each
+//! with its own reason: exponents, `+`, spaces, thousands separators, `NaN`,
+//! `inf`, hexadecimal and non-ASCII digits. Nothing is ever rounded: a value
+//! with more digits than `Decimal` holds exactly is refused.
+
+use rust_decimal::Decimal;
+use thiserror::Error;
+
+/// Most significant digits a `Decimal` holds without rounding.
+const DIGITS_MAX: usize = 28;
+
+#[derive(Debug, Error, Clone, PartialEq, Eq)]
+pub enum DecimalError {
+    #[error("empty")]
+    Empty,
+    #[error("not a number")]
+    NotANumber,
+    #[error("exponents are not accepted; write the digits out")]
+    Exponent,
+    #[error("spaces are not accepted")]
+    Space,
+    #[error("thousands separators are not accepted")]
+    Separator,
+    #[error("a leading + is not accepted")]
+    Plus,
+    #[error("negative values are not accepted")]
+    Negative,
+    #[error("more than {DIGITS_MAX} significant digits cannot be held exactly")]
+    TooLong,
+}
+
+/// Parse a decimal written as plain digits. `allow_negative` admits a leading `-`.
+pub fn parse_decimal(text: &str, allow_negative: bool) -> Result<Decimal, DecimalError> {
+    if text.is_empty() {
+        return Err(DecimalError::Empty);
+    }
+    let lower = text.to_ascii_lowercase();
+    if matches!(lower.trim_start_matches(['-', '+']), "nan" | "inf" | "infinity") {
+        return Err(DecimalError::NotANumber);
+    }
+    if text.chars().any(char::is_whitespace) {
+        return Err(DecimalError::Space);
+    }
+    let (negative, body) = match text.as_bytes()[0] {
+        b'-' => (true, &text[1..]),
+        b'+' => return Err(DecimalError::Plus),
+        _ => (false, text),
+    };
+    if negative && !allow_negative {
+        return Err(DecimalError::Negative);
+    }
+    if body.starts_with("0x") || body.starts_with("0X") {
+        return Err(DecimalError::NotANumber);
+    }
+    let mut digits = 0usize;
+    let mut dots = 0usize;
+    for c in body.chars() {
+        match c {
+            '0'..='9' => digits += 1,
+            '.' => dots += 1,
+            'e' | 'E' if digits > 0 => return Err(DecimalError::Exponent),
+            ',' | '_' | '\'' => return Err(DecimalError::Separator),
+            _ => return Err(DecimalError::NotANumber),
+        }
+    }
+    if digits == 0 || dots > 1 {
+        return Err(DecimalError::NotANumber);
+    }
+    let significant = body.trim_start_matches(['0', '.']).chars().filter(char::is_ascii_digit).count();
+    if significant > DIGITS_MAX || digits > DIGITS_MAX + 1 {
+        return Err(DecimalError::TooLong);
+    }
+    let value = Decimal::from_str_exact(text).map_err(|_| DecimalError::TooLong)?;
+    // "-0" is zero; keep it unsigned so stored text is canonical.
+    Ok(if value.is_zero() { Decimal::ZERO.with_scale_of(value) } else { value })
+}
+
+trait WithScale {
+    fn with_scale_of(self, other: Decimal) -> Decimal;
+}
+
+impl WithScale for Decimal {
+    fn with_scale_of(self, other: Decimal) -> Decimal {
+        let mut d = self;
+        d.rescale(other.scale());
+        d
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rust_decimal_macros::dec;
+
+    fn check(text: &str, expected: Result<Decimal, DecimalError>) {
+        assert_eq!(parse_decimal(text, false), expected, "input {text:?}");
+    }
+
+    #[test]
+    fn plain_digits_parse_exactly() {
+        check("0", Ok(dec!(0)));
+        check("12.50", Ok(dec!(12.50)));
+        check(".5", Ok(dec!(0.5)));
+        check("5.", Ok(dec!(5)));
+        check("0.0000001", Ok(dec!(0.0000001)));
+        assert_eq!(parse_decimal("12.50", false).unwrap().scale(), 2);
+    }
+
+    #[test]
+    fn every_bad_form_has_its_own_reason() {
+        check("", Err(DecimalError::Empty));
+        check("NaN", Err(DecimalError::NotANumber));
+        check("inf", Err(DecimalError::NotANumber));
+        check("-inf", Err(DecimalError::NotANumber));
+        check("1e309", Err(DecimalError::Exponent));
+        check("1e3", Err(DecimalError::Exponent));
+        check("1,5", Err(DecimalError::Separator));
+        check("+5", Err(DecimalError::Plus));
+        check(" 5", Err(DecimalError::Space));
+        check("0x10", Err(DecimalError::NotANumber));
+        check("５", Err(DecimalError::NotANumber));
+        check("-5", Err(DecimalError::Negative));
+        check("1.2.3", Err(DecimalError::NotANumber));
+        check(".", Err(DecimalError::NotANumber));
+        check("12345678901234567890123456789", Err(DecimalError::TooLong));
+    }
+
+    #[test]
+    fn negative_zero_is_zero_where_negatives_are_allowed() {
+        assert_eq!(parse_decimal("-0", true), Ok(dec!(0)));
+        assert!(!parse_decimal("-0.00", true).unwrap().is_sign_negative());
+        assert_eq!(parse_decimal("-2.5", true), Ok(dec!(-2.5)));
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn formatted_decimals_round_trip(mantissa in 0i64..i64::MAX, scale in 0u32..12) {
+            let d = Decimal::new(mantissa, scale);
+            proptest::prop_assert_eq!(parse_decimal(&d.to_string(), false), Ok(d));
+        }
+
+        #[test]
+        fn arbitrary_text_parses_exactly_or_is_refused(text in "\\PC{0,12}") {
+            if let Ok(d) = parse_decimal(&text, true) {
+                // Whatever is accepted is exactly the decimal written.
+                proptest::prop_assert_eq!(Decimal::from_str_exact(&text).unwrap(), d);
+            }
+        }
+    }
+}
