@@ -69,7 +69,7 @@ pub struct Year {
 
 impl Year {
     /// Add an amount to month `month` (1 to 12).
-    pub fn add(&mut self, month: u32, amounts: Amounts) {
+    pub fn add_month(&mut self, month: u32, amounts: Amounts) {
         self.months[(month - 1) as usize] += amounts;
     }
 
@@ -120,7 +120,7 @@ mod tests {
     fn quarters_and_ozone_season_cover_the_right_months() {
         let mut y = Year::default();
         for m in 1..=12 {
-            y.add(m, so2(Decimal::from(m)));
+            y.add_month(m, so2(Decimal::from(m)));
         }
         assert_eq!(y.quarter(1).get(Quantity::So2), Some(dec!(6)));
         assert_eq!(y.quarter(4).get(Quantity::So2), Some(dec!(33)));
@@ -132,7 +132,7 @@ mod tests {
     #[test]
     fn an_untracked_quantity_stays_absent_not_zero() {
         let mut y = Year::default();
-        y.add(3, so2(dec!(1)));
+        y.add_month(3, so2(dec!(1)));
         assert_eq!(y.annual().get(Quantity::Nox), None);
         assert_eq!(y.quarter(2).get(Quantity::So2), None);
     }
