@@ -85,7 +85,11 @@ impl fmt::Display for FileErrors {
             write!(f, "{}", e.display(&self.file))?;
         }
         if self.errors.len() > ERRORS_SHOWN_MAX {
-            write!(f, "\nand {} more errors", self.errors.len() - ERRORS_SHOWN_MAX)?;
+            write!(
+                f,
+                "\nand {} more errors",
+                self.errors.len() - ERRORS_SHOWN_MAX
+            )?;
         }
         Ok(())
     }
@@ -96,7 +100,11 @@ impl std::error::Error for FileErrors {}
 /// Quote a value for an error message: escaped, and cut to 80 characters so
 /// hostile text never reaches the terminal raw.
 pub fn shown(value: &str) -> String {
-    let mut out: String = value.chars().take(80).flat_map(char::escape_debug).collect();
+    let mut out: String = value
+        .chars()
+        .take(80)
+        .flat_map(char::escape_debug)
+        .collect();
     if value.chars().count() > 80 {
         out.push('…');
     }
@@ -234,7 +242,10 @@ impl<R: BufRead> Reader<R> {
                     // A quoted field goes on over the line break.
                     if !self.read_line(record_bytes)? {
                         self.done = true;
-                        return Err(RowError::line(start_line, "unclosed quote: a quoted field never ends"));
+                        return Err(RowError::line(
+                            start_line,
+                            "unclosed quote: a quoted field never ends",
+                        ));
                     }
                     record_bytes += self.raw.len() + 1;
                     self.field.push(b'\n');
@@ -295,10 +306,18 @@ impl<R: BufRead> Reader<R> {
         let column = record.len() + 1;
         let name = || format!("#{column}");
         if column > COLUMNS_MAX {
-            return Err(RowError::line(line, format!("more than {COLUMNS_MAX} columns")));
+            return Err(RowError::line(
+                line,
+                format!("more than {COLUMNS_MAX} columns"),
+            ));
         }
         if self.field.len() > FIELD_BYTES_MAX {
-            return Err(RowError::at(line, column, &name(), format!("longer than {FIELD_BYTES_MAX} bytes")));
+            return Err(RowError::at(
+                line,
+                column,
+                &name(),
+                format!("longer than {FIELD_BYTES_MAX} bytes"),
+            ));
         }
         let text = std::str::from_utf8(&self.field).map_err(|e| {
             RowError::at(
@@ -308,7 +327,10 @@ impl<R: BufRead> Reader<R> {
                 format!("invalid UTF-8 at byte {} of the field", e.valid_up_to()),
             )
         })?;
-        if let Some(c) = text.chars().find(|&c| c.is_control() && c != '\t' && c != '\n') {
+        if let Some(c) = text
+            .chars()
+            .find(|&c| c.is_control() && c != '\t' && c != '\n')
+        {
             return Err(RowError::at(
                 line,
                 column,
@@ -333,7 +355,11 @@ pub struct Columns {
 impl Columns {
     /// Check a header against the columns an import knows. Every required
     /// column must be present; no column may be unknown or repeated.
-    pub fn from_header(record: &Record, required: &[&str], optional: &[&str]) -> Result<Columns, Vec<RowError>> {
+    pub fn from_header(
+        record: &Record,
+        required: &[&str],
+        optional: &[&str],
+    ) -> Result<Columns, Vec<RowError>> {
         let mut errors = Vec::new();
         let names: Vec<String> = record.iter().map(str::to_string).collect();
         let expected = || {
@@ -347,7 +373,11 @@ impl Columns {
                     record.line,
                     i + 1,
                     n,
-                    format!("unknown column {} (expected columns: {})", shown(n), expected()),
+                    format!(
+                        "unknown column {} (expected columns: {})",
+                        shown(n),
+                        expected()
+                    ),
                 ));
             } else if names[..i].contains(n) {
                 errors.push(RowError::at(record.line, i + 1, n, "column named twice"));
@@ -399,7 +429,10 @@ mod tests {
     #[test]
     fn quoted_fields_hold_commas_quotes_and_line_breaks() {
         let r = records(b"a,b\n\"x,\"\"y\"\"\",\"two\nlines\"\n5,6\n").unwrap();
-        assert_eq!(r[1], (2, vec!["x,\"y\"".to_string(), "two\nlines".to_string()]));
+        assert_eq!(
+            r[1],
+            (2, vec!["x,\"y\"".to_string(), "two\nlines".to_string()])
+        );
         assert_eq!(r[2].0, 4);
     }
 
@@ -413,12 +446,24 @@ mod tests {
     #[test]
     fn limits_and_bad_bytes_are_refused() {
         let long = format!("a\n{}\n", "x".repeat(FIELD_BYTES_MAX + 1));
-        assert!(records(long.as_bytes()).unwrap_err().message.contains("longer than"));
+        assert!(records(long.as_bytes())
+            .unwrap_err()
+            .message
+            .contains("longer than"));
         let huge = format!("a\n{}\n", "x,".repeat(RECORD_BYTES_MAX));
-        assert!(records(huge.as_bytes()).unwrap_err().message.contains("record longer"));
+        assert!(records(huge.as_bytes())
+            .unwrap_err()
+            .message
+            .contains("record longer"));
         let e = records(b"a\n\xff\n").unwrap_err();
         assert_eq!((e.line, e.column), (2, Some(1)));
-        assert!(records(b"a\nx\x00y\n").unwrap_err().message.contains("control character"));
-        assert!(records(b"a\nx\"y\n").unwrap_err().message.contains("quote inside"));
+        assert!(records(b"a\nx\x00y\n")
+            .unwrap_err()
+            .message
+            .contains("control character"));
+        assert!(records(b"a\nx\"y\n")
+            .unwrap_err()
+            .message
+            .contains("quote inside"));
     }
 }

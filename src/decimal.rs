@@ -38,7 +38,10 @@ pub fn parse_decimal(text: &str, allow_negative: bool) -> Result<Decimal, Decima
         return Err(DecimalError::Empty);
     }
     let lower = text.to_ascii_lowercase();
-    if matches!(lower.trim_start_matches(['-', '+']), "nan" | "inf" | "infinity") {
+    if matches!(
+        lower.trim_start_matches(['-', '+']),
+        "nan" | "inf" | "infinity"
+    ) {
         return Err(DecimalError::NotANumber);
     }
     if text.chars().any(char::is_whitespace) {
@@ -69,13 +72,21 @@ pub fn parse_decimal(text: &str, allow_negative: bool) -> Result<Decimal, Decima
     if digits == 0 || dots > 1 {
         return Err(DecimalError::NotANumber);
     }
-    let significant = body.trim_start_matches(['0', '.']).chars().filter(char::is_ascii_digit).count();
+    let significant = body
+        .trim_start_matches(['0', '.'])
+        .chars()
+        .filter(char::is_ascii_digit)
+        .count();
     if significant > DIGITS_MAX || digits > DIGITS_MAX + 1 {
         return Err(DecimalError::TooLong);
     }
     let value = Decimal::from_str_exact(text).map_err(|_| DecimalError::TooLong)?;
     // "-0" is zero; keep it unsigned so stored text is canonical.
-    Ok(if value.is_zero() { Decimal::ZERO.with_scale_of(value) } else { value })
+    Ok(if value.is_zero() {
+        Decimal::ZERO.with_scale_of(value)
+    } else {
+        value
+    })
 }
 
 trait WithScale {

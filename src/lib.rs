@@ -4,8 +4,14 @@
 //! engine, the site file, input files, the ledger (all SQL), the report
 //! model and its renderers, and the command line.
 
-pub mod units;
+pub mod cli;
+pub mod compute;
+pub mod csvread;
 pub mod decimal;
 pub mod emissions;
+pub mod import;
+pub mod ledger;
+pub mod records;
+pub mod report;
 pub mod site;
-pub mod csvread;
+pub mod units;

@@ -185,13 +185,25 @@ impl Unit {
     /// The method for a quantity in force for `fuel` over `[start, end]`.
     /// A method naming the fuel wins over one without a fuel filter; the
     /// site parser has refused two of the same kind that overlap.
-    pub fn method_for(&self, quantity: Quantity, fuel: Fuel, start: NaiveDate, end: NaiveDate) -> Option<&MethodEntry> {
+    pub fn method_for(
+        &self,
+        quantity: Quantity,
+        fuel: Fuel,
+        start: NaiveDate,
+        end: NaiveDate,
+    ) -> Option<&MethodEntry> {
         let mut candidates = self
             .methods
             .iter()
             .filter(|m| m.quantity == quantity && m.covers(fuel, start, end));
         let first = candidates.next()?;
-        Some(candidates.fold(first, |best, m| if best.fuel.is_none() && m.fuel.is_some() { m } else { best }))
+        Some(candidates.fold(first, |best, m| {
+            if best.fuel.is_none() && m.fuel.is_some() {
+                m
+            } else {
+                best
+            }
+        }))
     }
 }
 
@@ -271,7 +283,11 @@ struct Lines<'a>(&'a str);
 
 impl Lines<'_> {
     fn at(&self, offset: usize) -> usize {
-        self.0.as_bytes()[..offset.min(self.0.len())].iter().filter(|&&b| b == b'\n').count() + 1
+        self.0.as_bytes()[..offset.min(self.0.len())]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count()
+            + 1
     }
 }
 
@@ -300,14 +316,26 @@ impl Reader<'_> {
         v.as_ref()
     }
 
-    fn parse<T>(&mut self, key: &str, v: &Field, what: &str, f: impl Fn(&Value) -> Result<T, String>) -> Option<T> {
+    fn parse<T>(
+        &mut self,
+        key: &str,
+        v: &Field,
+        what: &str,
+        f: impl Fn(&Value) -> Result<T, String>,
+    ) -> Option<T> {
         let v = v.as_ref()?;
         match f(v.get_ref()) {
             Ok(t) => Some(t),
             Err(why) => {
                 let line = self.line_of(v);
                 let table = self.table.clone();
-                self.err(line, format!("{table}: key `{key}`: {why}, found {} (expected {what})", shown(v.get_ref())));
+                self.err(
+                    line,
+                    format!(
+                        "{table}: key `{key}`: {why}, found {} (expected {what})",
+                        shown(v.get_ref())
+                    ),
+                );
                 None
             }
         }
@@ -315,7 +343,11 @@ impl Reader<'_> {
 
     fn text(&mut self, key: &str, v: &Field) -> Option<String> {
         self.parse(key, v, "a non-empty string", |v| match v {
-            Value::String(s) if !s.trim().is_empty() && s.trim() == s && !s.chars().any(char::is_control) => Ok(s.clone()),
+            Value::String(s)
+                if !s.trim().is_empty() && s.trim() == s && !s.chars().any(char::is_control) =>
+            {
+                Ok(s.clone())
+            }
             Value::String(_) => Err("empty, padded or with control characters".into()),
             _ => Err("not a string".into()),
         })
@@ -329,7 +361,11 @@ impl Reader<'_> {
     }
 
     fn decimal(&mut self, key: &str, v: &Field, positive: bool) -> Option<Decimal> {
-        let what = if positive { "a positive decimal" } else { "a decimal of zero or more" };
+        let what = if positive {
+            "a positive decimal"
+        } else {
+            "a decimal of zero or more"
+        };
         self.parse(key, v, what, |v| {
             let d = value_decimal(v)?;
             if d.is_sign_negative() && !d.is_zero() || positive && d.is_zero() {
@@ -341,7 +377,9 @@ impl Reader<'_> {
     }
 
     fn boolean(&mut self, key: &str, v: &Field) -> Option<bool> {
-        self.parse(key, v, "true or false", |v| v.as_bool().ok_or_else(|| "not a boolean".into()))
+        self.parse(key, v, "true or false", |v| {
+            v.as_bool().ok_or_else(|| "not a boolean".into())
+        })
     }
 
     fn date(&mut self, key: &str, v: &Field) -> Option<NaiveDate> {
@@ -370,7 +408,10 @@ fn value_decimal(v: &Value) -> Result<Decimal, String> {
         Value::Integer(i) => Ok(Decimal::from(*i)),
         Value::Float(f) if f.is_finite() => {
             let text = f.to_string();
-            let digits = text.chars().filter(char::is_ascii_digit).collect::<String>();
+            let digits = text
+                .chars()
+                .filter(char::is_ascii_digit)
+                .collect::<String>();
             if digits.trim_start_matches('0').len() > 15 {
                 Err("a float with more than 15 significant digits is not exact; write it as a string".into())
             } else {
@@ -445,9 +486,21 @@ fn build(raw: &RawSite, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<Si
         }
         Some(f) => build_facility(f, lines, errors),
     };
-    let units: Vec<Option<Unit>> = raw.units.iter().map(|u| build_unit(u, lines, errors)).collect();
-    let accounts: Vec<Option<Account>> = raw.accounts.iter().map(|a| build_account(a, lines, errors)).collect();
-    let programs: Vec<Option<Program>> = raw.programs.iter().map(|p| build_program(p, lines, errors)).collect();
+    let units: Vec<Option<Unit>> = raw
+        .units
+        .iter()
+        .map(|u| build_unit(u, lines, errors))
+        .collect();
+    let accounts: Vec<Option<Account>> = raw
+        .accounts
+        .iter()
+        .map(|a| build_account(a, lines, errors))
+        .collect();
+    let programs: Vec<Option<Program>> = raw
+        .programs
+        .iter()
+        .map(|p| build_program(p, lines, errors))
+        .collect();
     let site = Site {
         facility: facility?,
         units: units.into_iter().collect::<Option<_>>()?,
@@ -458,7 +511,11 @@ fn build(raw: &RawSite, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<Si
     Some(site)
 }
 
-fn build_facility(f: &Spanned<RawFacility>, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<Facility> {
+fn build_facility(
+    f: &Spanned<RawFacility>,
+    lines: &Lines,
+    errors: &mut Vec<SiteError>,
+) -> Option<Facility> {
     let mut r = Reader {
         lines,
         table: "[facility]".into(),
@@ -472,7 +529,11 @@ fn build_facility(f: &Spanned<RawFacility>, lines: &Lines, errors: &mut Vec<Site
         "utc_offset",
         &raw.utc_offset,
         "an offset such as -06:00",
-        |v| v.as_str().ok_or_else(|| "not a string".to_string()).and_then(parse_offset),
+        |v| {
+            v.as_str()
+                .ok_or_else(|| "not a string".to_string())
+                .and_then(parse_offset)
+        },
     ));
     let rounding = match &raw.rounding {
         None => Some(Rounding::Exact),
@@ -530,13 +591,22 @@ fn build_unit(u: &Spanned<RawUnit>, lines: &Lines, errors: &mut Vec<SiteError>) 
         id: id?,
         kind: kind?,
         fuel: fuel?,
-        max_load_mw: if raw.max_load_mw.is_some() { Some(max_load_mw?) } else { None },
+        max_load_mw: if raw.max_load_mw.is_some() {
+            Some(max_load_mw?)
+        } else {
+            None
+        },
         methods,
         line: table_line,
     })
 }
 
-fn build_method(m: &Spanned<RawMethod>, unit: &str, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<MethodEntry> {
+fn build_method(
+    m: &Spanned<RawMethod>,
+    unit: &str,
+    lines: &Lines,
+    errors: &mut Vec<SiteError>,
+) -> Option<MethodEntry> {
     let line = lines.at(m.span().start);
     let raw = m.get_ref();
     let mut r = Reader {
@@ -548,7 +618,9 @@ fn build_method(m: &Spanned<RawMethod>, unit: &str, lines: &Lines, errors: &mut 
     let quantity = r
         .required("quantity", &raw.quantity)
         .and(r.word::<Quantity>("quantity", &raw.quantity, "a quantity"))?;
-    let name = r.required("method", &raw.method).and(r.text("method", &raw.method))?;
+    let name = r
+        .required("method", &raw.method)
+        .and(r.text("method", &raw.method))?;
     let allowed = Method::allowed_for(quantity);
     if !allowed.contains(&name.as_str()) {
         let at = r.line_of(raw.method.as_ref().expect("required above"));
@@ -566,14 +638,21 @@ fn build_method(m: &Spanned<RawMethod>, unit: &str, lines: &Lines, errors: &mut 
         ("factor", &raw.factor, &["emission-factor"]),
         ("per", &raw.per, &["emission-factor"]),
         ("times_sulfur", &raw.times_sulfur, &["emission-factor"]),
-        ("rate_lb_per_mmbtu", &raw.rate_lb_per_mmbtu, &["default-rate"]),
+        (
+            "rate_lb_per_mmbtu",
+            &raw.rate_lb_per_mmbtu,
+            &["default-rate"],
+        ),
         ("diluent", &raw.diluent, &["cems"]),
     ];
     for (key, value, methods) in keys {
         if let Some(v) = value {
             if !methods.contains(&name.as_str()) {
                 let at = r.line_of(v);
-                r.err(at, format!("{unit} method: key `{key}` does not apply to method {name}"));
+                r.err(
+                    at,
+                    format!("{unit} method: key `{key}` does not apply to method {name}"),
+                );
             }
         }
     }
@@ -590,8 +669,12 @@ fn build_method(m: &Spanned<RawMethod>, unit: &str, lines: &Lines, errors: &mut 
             diluent.map(|diluent| Method::Cems { diluent })
         }
         "emission-factor" => {
-            let factor = r.required("factor", &raw.factor).and(r.decimal("factor", &raw.factor, false));
-            let per = r.required("per", &raw.per).and(r.word::<FuelUom>("per", &raw.per, "a fuel unit"));
+            let factor =
+                r.required("factor", &raw.factor)
+                    .and(r.decimal("factor", &raw.factor, false));
+            let per =
+                r.required("per", &raw.per)
+                    .and(r.word::<FuelUom>("per", &raw.per, "a fuel unit"));
             let times_sulfur = match &raw.times_sulfur {
                 None => Some(false),
                 some => r.boolean("times_sulfur", some),
@@ -620,7 +703,10 @@ fn build_method(m: &Spanned<RawMethod>, unit: &str, lines: &Lines, errors: &mut 
     if let (Some(f), Some(t)) = (from, to) {
         if t < f {
             let at = r.line_of(raw.to.as_ref().expect("parsed above"));
-            r.err(at, format!("{unit} method: key `to`: {t} is before `from` {f}"));
+            r.err(
+                at,
+                format!("{unit} method: key `to`: {t} is before `from` {f}"),
+            );
             return None;
         }
     }
@@ -657,7 +743,11 @@ fn check_method_overlaps(unit: &str, methods: &[MethodEntry], errors: &mut Vec<S
     }
 }
 
-fn build_account(a: &Spanned<RawAccount>, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<Account> {
+fn build_account(
+    a: &Spanned<RawAccount>,
+    lines: &Lines,
+    errors: &mut Vec<SiteError>,
+) -> Option<Account> {
     let raw = a.get_ref();
     let mut r = Reader {
         lines,
@@ -677,10 +767,17 @@ fn build_account(a: &Spanned<RawAccount>, lines: &Lines, errors: &mut Vec<SiteEr
             _ => Err("unknown account kind".into()),
         },
     ));
-    Some(Account { id: id?, kind: kind? })
+    Some(Account {
+        id: id?,
+        kind: kind?,
+    })
 }
 
-fn build_program(p: &Spanned<RawProgram>, lines: &Lines, errors: &mut Vec<SiteError>) -> Option<Program> {
+fn build_program(
+    p: &Spanned<RawProgram>,
+    lines: &Lines,
+    errors: &mut Vec<SiteError>,
+) -> Option<Program> {
     let raw = p.get_ref();
     let mut r = Reader {
         lines,
@@ -692,21 +789,29 @@ fn build_program(p: &Spanned<RawProgram>, lines: &Lines, errors: &mut Vec<SiteEr
     if let Some(id) = &id {
         r.table = format!("program {id}");
     }
-    let pollutant = r
-        .required("pollutant", &raw.pollutant)
-        .and(r.parse("pollutant", &raw.pollutant, "so2 or nox", |v| match v.as_str() {
+    let pollutant = r.required("pollutant", &raw.pollutant).and(r.parse(
+        "pollutant",
+        &raw.pollutant,
+        "so2 or nox",
+        |v| match v.as_str() {
             Some("so2") => Ok(Pollutant::So2),
             Some("nox") => Ok(Pollutant::Nox),
             _ => Err("unknown pollutant".into()),
-        }));
-    let season = r
-        .required("season", &raw.season)
-        .and(r.parse("season", &raw.season, "annual or ozone", |v| match v.as_str() {
+        },
+    ));
+    let season = r.required("season", &raw.season).and(r.parse(
+        "season",
+        &raw.season,
+        "annual or ozone",
+        |v| match v.as_str() {
             Some("annual") => Ok(Season::Annual),
             Some("ozone") => Ok(Season::Ozone),
             _ => Err("unknown season".into()),
-        }));
-    let account = r.required("account", &raw.account).and(r.text("account", &raw.account));
+        },
+    ));
+    let account = r
+        .required("account", &raw.account)
+        .and(r.text("account", &raw.account));
     let surrender_ratio = match &raw.surrender_ratio {
         None => Some(Decimal::ONE),
         some => r.decimal("surrender_ratio", some, true),
@@ -722,7 +827,11 @@ fn build_program(p: &Spanned<RawProgram>, lines: &Lines, errors: &mut Vec<SiteEr
         "true_up",
         &raw.true_up,
         "a day of the year MM-DD",
-        |v| v.as_str().ok_or_else(|| "not a string".to_string()).and_then(parse_true_up),
+        |v| {
+            v.as_str()
+                .ok_or_else(|| "not a string".to_string())
+                .and_then(parse_true_up)
+        },
     ));
     Some(Program {
         id: id?,
@@ -743,7 +852,10 @@ fn cross_check(site: &Site, raw: &RawSite, lines: &Lines, errors: &mut Vec<SiteE
         if let Some(first) = site.units[..i].iter().find(|o| o.id == u.id) {
             errors.push(SiteError {
                 line: line_of(&raw.units[i]),
-                message: format!("unit {}: id already used by the unit at line {}", u.id, first.line),
+                message: format!(
+                    "unit {}: id already used by the unit at line {}",
+                    u.id, first.line
+                ),
             });
         }
     }
@@ -766,7 +878,10 @@ fn cross_check(site: &Site, raw: &RawSite, lines: &Lines, errors: &mut Vec<SiteE
         if !site.accounts.iter().any(|a| a.id == p.account) {
             errors.push(SiteError {
                 line,
-                message: format!("program {}: key `account`: no account {:?} in this site file", p.id, p.account),
+                message: format!(
+                    "program {}: key `account`: no account {:?} in this site file",
+                    p.id, p.account
+                ),
             });
         }
     }

@@ -256,8 +256,12 @@ pub fn convert(
     let in_base = amount.amount * amount.uom.base_units();
     let target_base = match (from_dim, to_dim) {
         (a, b) if a == b => in_base,
-        (Dimension::LiquidVolume, Dimension::Mass) => in_base * density(amount, to, density_lb_per_gal)?,
-        (Dimension::Mass, Dimension::LiquidVolume) => in_base / density(amount, to, density_lb_per_gal)?,
+        (Dimension::LiquidVolume, Dimension::Mass) => {
+            in_base * density(amount, to, density_lb_per_gal)?
+        }
+        (Dimension::Mass, Dimension::LiquidVolume) => {
+            in_base / density(amount, to, density_lb_per_gal)?
+        }
         _ => {
             return Err(CalcError::Unreachable {
                 from: amount.uom,
@@ -268,7 +272,11 @@ pub fn convert(
     Ok(target_base / to.base_units())
 }
 
-fn density(amount: FuelAmount, to: FuelUom, density_lb_per_gal: Option<Decimal>) -> Result<Decimal, CalcError> {
+fn density(
+    amount: FuelAmount,
+    to: FuelUom,
+    density_lb_per_gal: Option<Decimal>,
+) -> Result<Decimal, CalcError> {
     match density_lb_per_gal {
         Some(d) if d > Decimal::ZERO => Ok(d),
         _ => Err(CalcError::NeedsDensity {

@@ -27,7 +27,11 @@ pub struct Analysis {
     pub density_lb_per_gal: Option<Decimal>,
 }
 
-fn need(value: Option<Decimal>, method: &'static str, field: &'static str) -> Result<Decimal, CalcError> {
+fn need(
+    value: Option<Decimal>,
+    method: &'static str,
+    field: &'static str,
+) -> Result<Decimal, CalcError> {
     value.ok_or(CalcError::MissingInput { method, field })
 }
 
@@ -45,7 +49,8 @@ pub fn heat_input_mmbtu(burn: FuelAmount, analysis: &Analysis) -> Result<Mmbtu, 
         field: "gcv_uom",
     })?;
     let reachable = burn.uom.dimension() == gcv_uom.dimension()
-        || (burn.uom.dimension() != Dimension::GasVolume && gcv_uom.dimension() != Dimension::GasVolume);
+        || (burn.uom.dimension() != Dimension::GasVolume
+            && gcv_uom.dimension() != Dimension::GasVolume);
     if !reachable {
         return Err(CalcError::GcvBasis {
             gcv_uom,
@@ -64,7 +69,11 @@ pub fn heat_input_mmbtu(burn: FuelAmount, analysis: &Analysis) -> Result<Mmbtu, 
 pub fn so2_fuel_sulfur_lb(burn: FuelAmount, analysis: &Analysis) -> Result<Lb, CalcError> {
     const METHOD: &str = "fuel-sulfur";
     if burn.uom.dimension() == Dimension::GasVolume {
-        let sulfur_gr = need(analysis.sulfur_gr_per_100scf, METHOD, "sulfur_gr_per_100scf")?;
+        let sulfur_gr = need(
+            analysis.sulfur_gr_per_100scf,
+            METHOD,
+            "sulfur_gr_per_100scf",
+        )?;
         let hundreds_scf = convert(burn, FuelUom::Scf, None)? / dec!(100);
         Ok(Lb(hundreds_scf * sulfur_gr / GRAINS_PER_LB * SO2_PER_S))
     } else {
@@ -88,7 +97,11 @@ pub fn emission_factor_lb(
 ) -> Result<Lb, CalcError> {
     let in_per = convert(burn, per, analysis.density_lb_per_gal)?;
     let sulfur = if times_sulfur {
-        need(analysis.sulfur_pct, "emission-factor with times_sulfur", "sulfur_pct")?
+        need(
+            analysis.sulfur_pct,
+            "emission-factor with times_sulfur",
+            "sulfur_pct",
+        )?
     } else {
         Decimal::ONE
     };

@@ -15,7 +15,12 @@ pub enum Quantity {
 }
 
 impl Quantity {
-    pub const ALL: [Quantity; 4] = [Quantity::HeatInput, Quantity::So2, Quantity::Nox, Quantity::Co2];
+    pub const ALL: [Quantity; 4] = [
+        Quantity::HeatInput,
+        Quantity::So2,
+        Quantity::Nox,
+        Quantity::Co2,
+    ];
 
     pub fn as_str(self) -> &'static str {
         match self {

@@ -78,7 +78,9 @@ impl Year {
     }
 
     fn sum(&self, months: impl Iterator<Item = u32>) -> Amounts {
-        months.map(|m| self.month(m)).fold(Amounts::default(), Add::add)
+        months
+            .map(|m| self.month(m))
+            .fold(Amounts::default(), Add::add)
     }
 
     /// Calendar quarter `q` (1 to 4).

@@ -1,0 +1,62 @@
+use crate::import::{analyses, fuel, InputFile, Outcome};
+use crate::ledger::Ledger;
+use clap::{Args, Subcommand};
+use std::path::{Path, PathBuf};
+
+#[derive(Debug, Subcommand)]
+pub enum ImportCommand {
+    /// Fuel sample analyses: sample,fuel,sampled_on,sulfur_pct,sulfur_gr_per_100scf,gcv,gcv_uom,carbon_pct,
+    /// hydrogen_pct,nitrogen_pct,oxygen_pct,density_lb_per_gal
+    #[command(
+        after_help = "Examples:\n  flue import analyses samples/analyses.csv\n  flue import analyses lab-fix.csv --correct \"lab reissued sample C-07\""
+    )]
+    Analyses(ImportArgs),
+    /// Fuel use records: unit,start,end,fuel,quantity,uom,sample (one calendar month at most per record)
+    #[command(
+        after_help = "Examples:\n  flue import fuel samples/fuel.csv\n  flue import fuel june.csv --correct \"meter K1 re-read\""
+    )]
+    Fuel(ImportArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct ImportArgs {
+    pub file: PathBuf,
+    /// Supersede rows held with other values; the old rows stay readable.
+    #[arg(long, value_name = "REASON", value_parser = non_empty)]
+    pub correct: Option<String>,
+}
+
+fn non_empty(s: &str) -> Result<String, String> {
+    if s.trim().is_empty() {
+        Err("a correction needs a reason".into())
+    } else {
+        Ok(s.to_string())
+    }
+}
+
+pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
+    let mut ledger = Ledger::open(ledger_path)?;
+    let stamp = super::stamp();
+    let (args, outcome): (&ImportArgs, Outcome) = match cmd {
+        ImportCommand::Analyses(a) => (
+            a,
+            analyses::import(
+                &mut ledger,
+                &InputFile::read(&a.file)?,
+                a.correct.as_deref(),
+                &stamp,
+            )?,
+        ),
+        ImportCommand::Fuel(a) => (
+            a,
+            fuel::import(
+                &mut ledger,
+                &InputFile::read(&a.file)?,
+                a.correct.as_deref(),
+                &stamp,
+            )?,
+        ),
+    };
+    println!("{}: {outcome}", args.file.display());
+    Ok(())
+}

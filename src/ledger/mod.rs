@@ -1,0 +1,298 @@
+//! The ledger: one SQLite file, and all the SQL of the project.
+//!
+//! Invariants: every writing command is one `BEGIN IMMEDIATE` transaction
+//! (RELIABILITY.md R1); the journal is a rollback journal with
+//! `synchronous=FULL` (R2: WAL can die with SIGBUS when the disk fills);
+//! foreign keys are on; a file that is not ours is refused (R3); input rows
+//! are only ever inserted.
+
+pub mod migrations;
+mod rows;
+
+use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
+use rusqlite::{config::DbConfig, Connection, ErrorCode, OpenFlags, TransactionBehavior};
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+use thiserror::Error;
+
+pub use rows::{BatchSummary, NewBatch, Reads, SiteVersion};
+
+/// How long a command waits for another process's write lock (RELIABILITY.md R2).
+pub const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
+
+#[derive(Debug, Error)]
+pub enum LedgerError {
+    #[error("no ledger at {0} (run `flue init` to create one)")]
+    NotFound(PathBuf),
+    #[error("a file already exists at {0}; flue init never overwrites")]
+    Exists(PathBuf),
+    #[error("{0} is not a flue ledger")]
+    NotALedger(PathBuf),
+    #[error(
+        "{path} was written by a newer flue (schema version {found}, this flue knows {known})"
+    )]
+    Newer {
+        path: PathBuf,
+        found: i32,
+        known: i32,
+    },
+    #[error("the ledger is locked by another process (waited {}s)", BUSY_TIMEOUT.as_secs())]
+    Busy,
+    #[error("the ledger is read-only: {0}")]
+    ReadOnly(String),
+    #[error("could not write the ledger: disk full or file too large")]
+    Full,
+    #[error("the ledger file is damaged: {0}")]
+    Damaged(String),
+    #[error("could not create {path}: {source}")]
+    Create {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("ledger error: {0}")]
+    Sqlite(rusqlite::Error),
+}
+
+impl From<rusqlite::Error> for LedgerError {
+    fn from(e: rusqlite::Error) -> LedgerError {
+        if let rusqlite::Error::SqliteFailure(f, msg) = &e {
+            let msg = msg.clone().unwrap_or_else(|| f.to_string());
+            return match f.code {
+                ErrorCode::DatabaseBusy | ErrorCode::DatabaseLocked => LedgerError::Busy,
+                ErrorCode::ReadOnly => LedgerError::ReadOnly(msg),
+                ErrorCode::DiskFull => LedgerError::Full,
+                ErrorCode::SystemIoFailure => LedgerError::Damaged(format!("I/O error: {msg}")),
+                ErrorCode::DatabaseCorrupt | ErrorCode::NotADatabase => LedgerError::Damaged(msg),
+                _ => LedgerError::Sqlite(e),
+            };
+        }
+        LedgerError::Sqlite(e)
+    }
+}
+
+pub type Result<T> = std::result::Result<T, LedgerError>;
+
+pub struct Ledger {
+    conn: Connection,
+    path: PathBuf,
+}
+
+/// A write transaction. Dropped without `commit`, it rolls back.
+pub struct Tx<'a> {
+    tx: rusqlite::Transaction<'a>,
+}
+
+impl Ledger {
+    /// Create a new, empty ledger. Refuses to touch an existing file.
+    pub fn create(path: &Path) -> Result<Ledger> {
+        create_private_file(path)?;
+        let mut ledger = Ledger::connect(path)?;
+        ledger.migrate()?;
+        Ok(ledger)
+    }
+
+    /// Open an existing ledger, upgrading an older schema in one transaction.
+    pub fn open(path: &Path) -> Result<Ledger> {
+        if !path.is_file() {
+            return Err(LedgerError::NotFound(path.to_path_buf()));
+        }
+        let mut ledger = Ledger::connect(path)?;
+        let not_ours = |_| LedgerError::NotALedger(path.to_path_buf());
+        let app_id: i32 = ledger
+            .conn
+            .query_row("PRAGMA application_id", [], |r| r.get(0))
+            .map_err(not_ours)?;
+        if app_id != APPLICATION_ID {
+            return Err(LedgerError::NotALedger(path.to_path_buf()));
+        }
+        let version = ledger.user_version()?;
+        if version > latest_version() {
+            return Err(LedgerError::Newer {
+                path: path.to_path_buf(),
+                found: version,
+                known: latest_version(),
+            });
+        }
+        if version < latest_version() {
+            ledger.migrate()?;
+        }
+        Ok(ledger)
+    }
+
+    fn connect(path: &Path) -> Result<Ledger> {
+        // Never SQLITE_OPEN_CREATE: only `create` makes a file (RELIABILITY.md R3).
+        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let conn = Connection::open_with_flags(path, flags)?;
+        conn.busy_timeout(BUSY_TIMEOUT)?;
+        conn.set_db_config(DbConfig::SQLITE_DBCONFIG_DEFENSIVE, true)?;
+        conn.set_db_config(DbConfig::SQLITE_DBCONFIG_TRUSTED_SCHEMA, false)?;
+        let journal: String = conn
+            .query_row("PRAGMA journal_mode=DELETE", [], |r| r.get(0))
+            .map_err(|e| match LedgerError::from(e) {
+                LedgerError::Damaged(_) => LedgerError::NotALedger(path.to_path_buf()),
+                other => other,
+            })?;
+        conn.execute_batch("PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")?;
+        let synchronous: i64 = conn.query_row("PRAGMA synchronous", [], |r| r.get(0))?;
+        // RELIABILITY.md C8: never run with a weaker durability setting.
+        assert_eq!(synchronous, 2, "synchronous must be FULL");
+        assert_eq!(journal, "delete", "journal_mode must be DELETE");
+        Ok(Ledger {
+            conn,
+            path: path.to_path_buf(),
+        })
+    }
+
+    fn user_version(&self) -> Result<i32> {
+        Ok(self
+            .conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))?)
+    }
+
+    fn migrate(&mut self) -> Result<()> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)?;
+        let from: i32 = tx.query_row("PRAGMA user_version", [], |r| r.get(0))?;
+        for (_, sql) in &MIGRATIONS[from as usize..] {
+            tx.execute_batch(sql)?;
+        }
+        tx.execute_batch(&format!(
+            "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {};",
+            latest_version()
+        ))?;
+        tx.commit()?;
+        Ok(())
+    }
+
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Run `f` in one `BEGIN IMMEDIATE` transaction; commit only if it succeeds.
+    pub fn write<T, E: From<LedgerError>>(
+        &mut self,
+        f: impl FnOnce(&Tx) -> std::result::Result<T, E>,
+    ) -> std::result::Result<T, E> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(LedgerError::from)?;
+        let tx = Tx { tx };
+        let out = f(&tx)?;
+        tx.tx.commit().map_err(LedgerError::from)?;
+        Ok(out)
+    }
+}
+
+/// Create the ledger file with mode 0600, failing if anything is there.
+fn create_private_file(path: &Path) -> Result<()> {
+    let mut options = std::fs::OpenOptions::new();
+    options.write(true).create_new(true);
+    #[cfg(unix)]
+    std::os::unix::fs::OpenOptionsExt::mode(&mut options, 0o600);
+    match options.open(path) {
+        Ok(_) => Ok(()),
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            Err(LedgerError::Exists(path.to_path_buf()))
+        }
+        Err(source) => Err(LedgerError::Create {
+            path: path.to_path_buf(),
+            source,
+        }),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_migration_applies_to_an_empty_database() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("l.db");
+        let ledger = Ledger::create(&path).unwrap();
+        assert_eq!(ledger.user_version().unwrap(), latest_version());
+        drop(ledger);
+        Ledger::open(&path).unwrap();
+    }
+
+    #[test]
+    fn foreign_and_empty_files_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let empty = dir.path().join("empty.db");
+        std::fs::write(&empty, b"").unwrap();
+        assert!(matches!(
+            Ledger::open(&empty),
+            Err(LedgerError::NotALedger(_))
+        ));
+        let foreign = dir.path().join("foreign.db");
+        Connection::open(&foreign)
+            .unwrap()
+            .execute_batch("CREATE TABLE t(x)")
+            .unwrap();
+        assert!(matches!(
+            Ledger::open(&foreign),
+            Err(LedgerError::NotALedger(_))
+        ));
+        let text = dir.path().join("text.db");
+        std::fs::write(
+            &text,
+            b"this is not a database at all, just some text padding it out",
+        )
+        .unwrap();
+        assert!(matches!(
+            Ledger::open(&text),
+            Err(LedgerError::NotALedger(_))
+        ));
+        assert!(matches!(
+            Ledger::open(&dir.path().join("missing.db")),
+            Err(LedgerError::NotFound(_))
+        ));
+        assert!(!dir.path().join("missing.db").exists());
+    }
+
+    #[test]
+    fn create_never_overwrites() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("l.db");
+        std::fs::write(&path, b"keep me").unwrap();
+        assert!(matches!(Ledger::create(&path), Err(LedgerError::Exists(_))));
+        assert_eq!(std::fs::read(&path).unwrap(), b"keep me");
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn ledger_file_is_private() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("l.db");
+        Ledger::create(&path).unwrap();
+        assert_eq!(
+            std::fs::metadata(&path).unwrap().permissions().mode() & 0o777,
+            0o600
+        );
+    }
+
+    #[test]
+    fn input_tables_refuse_update_and_delete() {
+        let dir = tempfile::tempdir().unwrap();
+        let ledger = Ledger::create(&dir.path().join("l.db")).unwrap();
+        ledger
+            .conn
+            .execute_batch(
+                "INSERT INTO import_batches VALUES (1,'fuel','f.csv',printf('%064d',0),0,0,0,'t','u',NULL);",
+            )
+            .unwrap();
+        let err = ledger
+            .conn
+            .execute("UPDATE import_batches SET file_name = 'x'", [])
+            .unwrap_err();
+        assert!(err.to_string().contains("append-only"));
+        let err = ledger
+            .conn
+            .execute("DELETE FROM import_batches", [])
+            .unwrap_err();
+        assert!(err.to_string().contains("append-only"));
+    }
+}

@@ -1,0 +1,31 @@
+//! One report model, several renderers. Renderers format; none computes.
+
+pub mod csv;
+pub mod model;
+pub mod table;
+
+pub use model::{AnnualReport, CAUTION, FORMAT_VERSION};
+
+/// The output formats of a report.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum Format {
+    Table,
+    Json,
+    Csv,
+}
+
+/// Render a report in the chosen format.
+pub fn render(
+    report: &AnnualReport,
+    format: Format,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    match format {
+        Format::Table => out.write_all(table::annual(report).as_bytes()),
+        Format::Json => {
+            serde_json::to_writer_pretty(&mut *out, report)?;
+            out.write_all(b"\n")
+        }
+        Format::Csv => out.write_all(csv::annual(report).as_bytes()),
+    }
+}

@@ -1,0 +1,171 @@
+//! The annual report model: every figure of the report, at full precision.
+
+use crate::compute::UnitYear;
+use crate::emissions::method::Quantity;
+use crate::emissions::periods::Amounts;
+use crate::site::Site;
+use crate::units::{rate_lb_per_mmbtu, Lb};
+use rust_decimal::Decimal;
+use serde::Serialize;
+
+/// JSON layout version; the JSON only ever gains fields.
+pub const FORMAT_VERSION: u32 = 1;
+
+/// The caution every report ends with.
+pub const CAUTION: &str =
+    "Results support, and never replace, the judgement of the responsible official \
+and the monitoring and reporting rules of the plant's own permit and jurisdiction (local rules).";
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct AnnualReport {
+    pub format_version: u32,
+    pub facility: String,
+    pub facility_name: String,
+    pub year: i32,
+    pub site_version: i64,
+    pub rounding: &'static str,
+    pub units: Vec<UnitReport>,
+    pub totals: Totals,
+    /// Each program's reconciliation (filled once allowances are tracked).
+    pub programs: Vec<serde_json::Value>,
+    pub caution: &'static str,
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct UnitReport {
+    pub unit: String,
+    pub kind: &'static str,
+    pub fuel: &'static str,
+    /// `quantity: method` for each method of the unit, in site-file order.
+    pub methods: Vec<String>,
+    /// Sum of operating time; fuel records carry none, so `null` for fuel-based units.
+    pub operating_hours: Option<Decimal>,
+    pub heat_input_mmbtu: Option<Decimal>,
+    pub so2_tons: Option<Decimal>,
+    pub nox_tons: Option<Decimal>,
+    pub co2_tons: Option<Decimal>,
+    pub nox_rate_lb_per_mmbtu: Option<Decimal>,
+    pub substituted_hours: SubstitutedHours,
+    pub fuel_records: usize,
+    pub quarters: Vec<Period>,
+    pub ozone_season: Period,
+    pub months: Vec<Period>,
+}
+
+#[derive(Debug, Clone, Copy, Serialize, PartialEq, Eq, Default)]
+pub struct SubstitutedHours {
+    pub so2: u32,
+    pub flow: u32,
+    pub nox: u32,
+}
+
+/// The figures of one period: a quarter, a month or the ozone season.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Period {
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub quarter: Option<u32>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub month: Option<u32>,
+    pub heat_input_mmbtu: Option<Decimal>,
+    pub so2_tons: Option<Decimal>,
+    pub nox_tons: Option<Decimal>,
+    pub co2_tons: Option<Decimal>,
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Totals {
+    pub heat_input_mmbtu: Option<Decimal>,
+    pub so2_tons: Option<Decimal>,
+    pub nox_tons: Option<Decimal>,
+    pub co2_tons: Option<Decimal>,
+    pub nox_rate_lb_per_mmbtu: Option<Decimal>,
+    pub quarters: Vec<Period>,
+    pub ozone_season: Period,
+}
+
+fn tons(lb: Option<Lb>) -> Option<Decimal> {
+    lb.map(|lb| lb.to_tons().0.normalize())
+}
+
+fn period(a: Amounts, quarter: Option<u32>, month: Option<u32>) -> Period {
+    Period {
+        quarter,
+        month,
+        heat_input_mmbtu: a.heat_input().map(|h| h.0.normalize()),
+        so2_tons: tons(a.so2()),
+        nox_tons: tons(a.nox()),
+        co2_tons: tons(a.co2()),
+    }
+}
+
+/// Heat-input-weighted NOx rate: Σ NOx lb / Σ heat input.
+fn nox_rate(a: Amounts) -> Option<Decimal> {
+    rate_lb_per_mmbtu(a.nox()?, a.heat_input()?).map(|r| r.0.normalize())
+}
+
+/// Build the annual report of one facility from its units' years.
+pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> AnnualReport {
+    let mut facility = crate::emissions::periods::Year::default();
+    let reports = units
+        .iter()
+        .map(|u| {
+            facility = facility + u.year;
+            let a = u.year.annual();
+            UnitReport {
+                unit: u.unit.id.clone(),
+                kind: u.unit.kind.as_str(),
+                fuel: u.unit.fuel.as_str(),
+                methods: u
+                    .unit
+                    .methods
+                    .iter()
+                    .map(|m| {
+                        let mut s = format!("{}: {}", m.quantity, m.method.name());
+                        if let Some(f) = m.fuel {
+                            s.push_str(&format!(" ({f})"));
+                        }
+                        s
+                    })
+                    .collect(),
+                operating_hours: None,
+                heat_input_mmbtu: a.heat_input().map(|h| h.0.normalize()),
+                so2_tons: tons(a.so2()),
+                nox_tons: tons(a.nox()),
+                co2_tons: tons(a.co2()),
+                nox_rate_lb_per_mmbtu: nox_rate(a),
+                substituted_hours: SubstitutedHours::default(),
+                fuel_records: u.record_ids.len(),
+                quarters: (1..=4)
+                    .map(|q| period(u.year.quarter(q), Some(q), None))
+                    .collect(),
+                ozone_season: period(u.year.ozone_season(), None, None),
+                months: (1..=12)
+                    .map(|m| period(u.year.month(m), None, Some(m)))
+                    .collect(),
+            }
+        })
+        .collect();
+    let a = facility.annual();
+    AnnualReport {
+        format_version: FORMAT_VERSION,
+        facility: site.facility.id.clone(),
+        facility_name: site.facility.name.clone(),
+        year,
+        site_version,
+        rounding: site.facility.rounding.as_str(),
+        units: reports,
+        totals: Totals {
+            heat_input_mmbtu: a.get(Quantity::HeatInput).map(|h| h.normalize()),
+            so2_tons: tons(a.so2()),
+            nox_tons: tons(a.nox()),
+            co2_tons: tons(a.co2()),
+            nox_rate_lb_per_mmbtu: nox_rate(a),
+            quarters: (1..=4)
+                .map(|q| period(facility.quarter(q), Some(q), None))
+                .collect(),
+            ozone_season: period(facility.ozone_season(), None, None),
+        },
+        programs: Vec::new(),
+        caution: CAUTION,
+    }
+}

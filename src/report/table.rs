@@ -1,0 +1,138 @@
+//! Tables for people: tons to 1 decimal, heat input to whole MMBtu, NOx rate
+//! to 0.001 lb/MMBtu. Rounding here is for reading only (common practice);
+//! the JSON keeps full precision.
+
+use super::model::{AnnualReport, Period};
+use comfy_table::{presets::UTF8_FULL_CONDENSED, CellAlignment, Table};
+use rust_decimal::{Decimal, RoundingStrategy};
+use std::fmt::Write;
+
+/// Shown where a unit does not track a quantity: absent, not zero.
+const ABSENT: &str = "—";
+
+fn fixed(value: Option<Decimal>, dp: u32) -> String {
+    match value {
+        // Round half away from zero, at the report boundary only.
+        Some(v) => format!(
+            "{:.*}",
+            dp as usize,
+            v.round_dp_with_strategy(dp, RoundingStrategy::MidpointAwayFromZero)
+        ),
+        None => ABSENT.to_string(),
+    }
+}
+
+fn table(header: &[&str]) -> Table {
+    let mut t = Table::new();
+    t.load_preset(UTF8_FULL_CONDENSED);
+    t.set_header(header.to_vec());
+    t
+}
+
+fn right_align(t: &mut Table, from: usize) {
+    let n = t.column_count();
+    for i in from..n {
+        if let Some(c) = t.column_mut(i) {
+            c.set_cell_alignment(CellAlignment::Right);
+        }
+    }
+}
+
+fn period_cells(p: &Period) -> [String; 4] {
+    [
+        fixed(p.heat_input_mmbtu, 0),
+        fixed(p.so2_tons, 1),
+        fixed(p.nox_tons, 1),
+        fixed(p.co2_tons, 1),
+    ]
+}
+
+pub fn annual(r: &AnnualReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "{} ({}): annual emissions {} (site file version {}, rounding {})\n",
+        r.facility_name, r.facility, r.year, r.site_version, r.rounding
+    );
+    let mut units = table(&[
+        "Unit",
+        "Kind",
+        "Fuel",
+        "Records",
+        "Heat input (MMBtu)",
+        "SO2 (tons)",
+        "NOx (tons)",
+        "CO2 (tons)",
+        "NOx (lb/MMBtu)",
+    ]);
+    for u in &r.units {
+        let mut row = vec![
+            u.unit.clone(),
+            u.kind.to_string(),
+            u.fuel.to_string(),
+            u.fuel_records.to_string(),
+        ];
+        row.extend(period_cells(&Period {
+            quarter: None,
+            month: None,
+            heat_input_mmbtu: u.heat_input_mmbtu,
+            so2_tons: u.so2_tons,
+            nox_tons: u.nox_tons,
+            co2_tons: u.co2_tons,
+        }));
+        row.push(fixed(u.nox_rate_lb_per_mmbtu, 3));
+        units.add_row(row);
+    }
+    let t = &r.totals;
+    let mut total = vec![
+        "Facility".to_string(),
+        String::new(),
+        String::new(),
+        String::new(),
+    ];
+    total.extend([
+        fixed(t.heat_input_mmbtu, 0),
+        fixed(t.so2_tons, 1),
+        fixed(t.nox_tons, 1),
+        fixed(t.co2_tons, 1),
+        fixed(t.nox_rate_lb_per_mmbtu, 3),
+    ]);
+    units.add_row(total);
+    right_align(&mut units, 3);
+    let _ = writeln!(out, "{units}\n");
+
+    let mut periods = table(&[
+        "Unit",
+        "Period",
+        "Heat input (MMBtu)",
+        "SO2 (tons)",
+        "NOx (tons)",
+        "CO2 (tons)",
+    ]);
+    let rows = r
+        .units
+        .iter()
+        .map(|u| (u.unit.as_str(), &u.quarters, &u.ozone_season))
+        .chain(std::iter::once(("Facility", &t.quarters, &t.ozone_season)));
+    for (name, quarters, ozone) in rows {
+        for q in quarters {
+            let mut row = vec![
+                name.to_string(),
+                format!("Q{}", q.quarter.unwrap_or_default()),
+            ];
+            row.extend(period_cells(q));
+            periods.add_row(row);
+        }
+        let mut row = vec![name.to_string(), "Ozone season (May–Sep)".to_string()];
+        row.extend(period_cells(ozone));
+        periods.add_row(row);
+    }
+    right_align(&mut periods, 2);
+    let _ = writeln!(out, "Quarters and ozone season\n{periods}\n");
+    let _ = writeln!(
+        out,
+        "{ABSENT} = quantity not tracked for the unit (no method in the site file)."
+    );
+    let _ = writeln!(out, "Caution: {}", r.caution);
+    out
+}
