@@ -162,3 +162,84 @@ mod tests {
         }
     }
 }
+
+/// Why a fixed-point reading was refused.
+#[derive(Debug, Error, Clone, PartialEq, Eq)]
+pub enum FixedError {
+    #[error(transparent)]
+    Decimal(#[from] DecimalError),
+    #[error("more than {0} decimal places")]
+    Scale(u32),
+}
+
+/// Parse plain decimal text into an integer count of 10^-`scale` units, by
+/// the same rules as [`parse_decimal`] (no sign, exponent or separator).
+/// Faster than going through `Decimal` for the hourly path; a value with
+/// more decimals than `scale` is refused, never rounded.
+pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
+    let bytes = text.as_bytes();
+    let mut int_part: i64 = 0;
+    let mut frac_digits = 0u32;
+    let mut seen_dot = false;
+    let mut digits = 0usize;
+    for &b in bytes {
+        match b {
+            b'0'..=b'9' => {
+                digits += 1;
+                if seen_dot {
+                    frac_digits += 1;
+                    if frac_digits > scale {
+                        // Trailing zeros beyond the scale are still exact.
+                        if b == b'0' {
+                            frac_digits -= 1;
+                            continue;
+                        }
+                        return Err(FixedError::Scale(scale));
+                    }
+                }
+                int_part = int_part
+                    .checked_mul(10)
+                    .and_then(|v| v.checked_add(i64::from(b - b'0')))
+                    .ok_or(DecimalError::TooLong)?;
+            }
+            b'.' if !seen_dot => seen_dot = true,
+            // Anything else: let the strict parser name the reason.
+            _ => return Err(parse_decimal(text, false).err().unwrap_or(DecimalError::NotANumber).into()),
+        }
+    }
+    if digits == 0 {
+        return Err(parse_decimal(text, false).err().unwrap_or(DecimalError::NotANumber).into());
+    }
+    int_part
+        .checked_mul(10i64.pow(scale - frac_digits))
+        .ok_or(FixedError::Decimal(DecimalError::TooLong))
+}
+
+#[cfg(test)]
+mod fixed_tests {
+    use super::*;
+
+    #[test]
+    fn fixed_point_parses_exactly_and_refuses_what_it_cannot_hold() {
+        assert_eq!(parse_fixed("12.5", 3), Ok(12_500));
+        assert_eq!(parse_fixed("0.001", 3), Ok(1));
+        assert_eq!(parse_fixed("7", 2), Ok(700));
+        assert_eq!(parse_fixed("1.2500", 2), Ok(125));
+        assert_eq!(parse_fixed("0.125", 2), Err(FixedError::Scale(2)));
+        assert_eq!(parse_fixed("", 2), Err(FixedError::Decimal(DecimalError::Empty)));
+        assert_eq!(parse_fixed("NaN", 2), Err(FixedError::Decimal(DecimalError::NotANumber)));
+        assert_eq!(parse_fixed("-1", 2), Err(FixedError::Decimal(DecimalError::Negative)));
+        assert_eq!(parse_fixed("1e3", 2), Err(FixedError::Decimal(DecimalError::Exponent)));
+        assert_eq!(parse_fixed("99999999999999999999", 2), Err(FixedError::Decimal(DecimalError::TooLong)));
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn fixed_agrees_with_decimal(mantissa in 0i64..1_000_000_000_000, scale in 0u32..7) {
+            let d = Decimal::new(mantissa, scale);
+            let text = d.to_string();
+            let fixed = parse_fixed(&text, 6).unwrap();
+            proptest::prop_assert_eq!(Decimal::new(fixed, 6), d);
+        }
+    }
+}

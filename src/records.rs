@@ -3,6 +3,8 @@
 use crate::emissions::fuel::{Fuel, FuelAmount};
 use crate::emissions::fuel_based::Analysis;
 use chrono::NaiveDate;
+use rust_decimal::Decimal;
+use rust_decimal_macros::dec;
 
 /// Where a stored row came from: its import batch, file, line and the file's digest.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -55,4 +57,120 @@ impl FuelUse {
     pub fn key(&self) -> (String, Fuel, NaiveDate, NaiveDate) {
         (self.unit.clone(), self.fuel, self.start, self.end)
     }
+}
+
+/// Scale of stored hourly readings: millionths of the reading's unit.
+pub const READING_SCALE: u32 = 6;
+/// Scale of operating time: hundredths of an hour (40 CFR 75 App. F Eq. F-3:
+/// operating time in increments of 0.01 hour).
+pub const OP_TIME_SCALE: u32 = 2;
+
+/// The readings of an hourly file, each a column with its moisture basis.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Reading {
+    LoadMw,
+    So2PpmWet,
+    So2PpmDry,
+    NoxPpmWet,
+    NoxPpmDry,
+    O2PctWet,
+    O2PctDry,
+    Co2PctWet,
+    Co2PctDry,
+    FlowScfhWet,
+    H2oPct,
+}
+
+impl Reading {
+    pub const COUNT: usize = 11;
+    pub const ALL: [Reading; Reading::COUNT] = [
+        Reading::LoadMw,
+        Reading::So2PpmWet,
+        Reading::So2PpmDry,
+        Reading::NoxPpmWet,
+        Reading::NoxPpmDry,
+        Reading::O2PctWet,
+        Reading::O2PctDry,
+        Reading::Co2PctWet,
+        Reading::Co2PctDry,
+        Reading::FlowScfhWet,
+        Reading::H2oPct,
+    ];
+
+    /// The column name, in files and in the ledger.
+    pub fn column(self) -> &'static str {
+        match self {
+            Reading::LoadMw => "load_mw",
+            Reading::So2PpmWet => "so2_ppm_wet",
+            Reading::So2PpmDry => "so2_ppm_dry",
+            Reading::NoxPpmWet => "nox_ppm_wet",
+            Reading::NoxPpmDry => "nox_ppm_dry",
+            Reading::O2PctWet => "o2_pct_wet",
+            Reading::O2PctDry => "o2_pct_dry",
+            Reading::Co2PctWet => "co2_pct_wet",
+            Reading::Co2PctDry => "co2_pct_dry",
+            Reading::FlowScfhWet => "flow_scfh_wet",
+            Reading::H2oPct => "h2o_pct",
+        }
+    }
+
+    pub fn index(self) -> usize {
+        self as usize
+    }
+
+    /// The largest value accepted, exclusive or inclusive, with its reason.
+    pub fn upper_bound(self) -> Option<(Decimal, bool, &'static str)> {
+        match self {
+            // O2 at or above ambient 20.9 % leaves no combustion gas (App. F Eq. F-5 divides by 20.9 − O2).
+            Reading::O2PctWet | Reading::O2PctDry => Some((dec!(20.9), true, "O2 must be below 20.9 %")),
+            // 100 % moisture leaves no dry gas (App. F Eq. F-2 multiplies by 100 − H2O).
+            Reading::H2oPct => Some((dec!(100), true, "moisture must be below 100 %")),
+            Reading::Co2PctWet | Reading::Co2PctDry => Some((dec!(100), false, "CO2 cannot exceed 100 %")),
+            _ => None,
+        }
+    }
+}
+
+/// One unit-hour of monitor data, as stored: fixed-point integers
+/// (operating time ×10^2, readings ×10^6); `None` is an empty cell.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct HourRow {
+    /// Hours since 1970-01-01T00:00, local standard time.
+    pub hour: i64,
+    pub op_time_centi: i64,
+    pub readings: [Option<i64>; Reading::COUNT],
+}
+
+impl HourRow {
+    pub fn op_time_hr(&self) -> Decimal {
+        Decimal::new(self.op_time_centi, OP_TIME_SCALE)
+    }
+
+    pub fn reading(&self, r: Reading) -> Option<Decimal> {
+        self.readings[r.index()].map(|v| Decimal::new(v, READING_SCALE))
+    }
+
+    /// The first field that differs from `held`, for refusal messages.
+    pub fn first_difference(&self, held: &HourRow) -> Option<(&'static str, String, String)> {
+        let show = |v: Option<Decimal>| v.map(|d| d.normalize().to_string()).unwrap_or_else(|| "empty".into());
+        if self.op_time_centi != held.op_time_centi {
+            return Some(("op_time", held.op_time_hr().to_string(), self.op_time_hr().to_string()));
+        }
+        Reading::ALL
+            .into_iter()
+            .find(|r| self.readings[r.index()] != held.readings[r.index()])
+            .map(|r| (r.column(), show(held.reading(r)), show(self.reading(r))))
+    }
+}
+
+/// Local standard time of an hour index, for messages and reports.
+pub fn hour_label(hour: i64) -> String {
+    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1).expect("valid date").and_hms_opt(0, 0, 0).expect("valid time");
+    (epoch + chrono::Duration::hours(hour)).format("%Y-%m-%dT%H:00").to_string()
+}
+
+/// The hour index of a local standard time `YYYY-MM-DDTHH:00`.
+pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
+    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1).expect("valid date").and_hms_opt(0, 0, 0).expect("valid time");
+    (t - epoch).num_hours()
 }

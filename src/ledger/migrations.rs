@@ -1,8 +1,10 @@
 //! Schema migrations, applied in order; the count applied is `PRAGMA user_version`.
 //! Never edit a released migration: add a new one.
 
-pub const MIGRATIONS: &[(&str, &str)] =
-    &[("0001_init", include_str!("../../schema/0001_init.sql"))];
+pub const MIGRATIONS: &[(&str, &str)] = &[
+    ("0001_init", include_str!("../../schema/0001_init.sql")),
+    ("0002_hourly", include_str!("../../schema/0002_hourly.sql")),
+];
 
 /// Our own SQLite `application_id`: the ASCII bytes "FLUE". A file without
 /// it is not a flue ledger and is refused.
