@@ -298,7 +298,7 @@ fn co2_from_fc_c18() {
         G4,
     );
     // Per MMBtu these are the low mass emitter CO2 defaults, 0.059 and 0.081
-    // tons/MMBtu (40 CFR 75.19 Table LM-2: value from memory).
+    // tons/MMBtu (40 CFR 75.19 Tables LM-1 to LM-3: values from memory).
     let one = Mmbtu(Decimal::ONE);
     check(
         ok(co2_fc_factor_lb(one, Fuel::NaturalGas).to_tons()),
