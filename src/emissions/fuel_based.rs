@@ -143,3 +143,7 @@ pub fn co2_fc_factor_lb(heat_input: Mmbtu, fuel: Fuel) -> Lb {
     let fc = f_factors(fuel).fc_scf_per_mmbtu;
     Lb(fc * heat_input.0 * MW_CO2 / SCF_PER_LB_MOLE)
 }
+
+#[cfg(test)]
+#[path = "fuel_based_tests.rs"]
+mod tests;
