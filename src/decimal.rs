@@ -204,11 +204,19 @@ pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
             }
             b'.' if !seen_dot => seen_dot = true,
             // Anything else: let the strict parser name the reason.
-            _ => return Err(parse_decimal(text, false).err().unwrap_or(DecimalError::NotANumber).into()),
+            _ => {
+                return Err(parse_decimal(text, false)
+                    .err()
+                    .unwrap_or(DecimalError::NotANumber)
+                    .into())
+            }
         }
     }
     if digits == 0 {
-        return Err(parse_decimal(text, false).err().unwrap_or(DecimalError::NotANumber).into());
+        return Err(parse_decimal(text, false)
+            .err()
+            .unwrap_or(DecimalError::NotANumber)
+            .into());
     }
     int_part
         .checked_mul(10i64.pow(scale - frac_digits))
@@ -226,11 +234,26 @@ mod fixed_tests {
         assert_eq!(parse_fixed("7", 2), Ok(700));
         assert_eq!(parse_fixed("1.2500", 2), Ok(125));
         assert_eq!(parse_fixed("0.125", 2), Err(FixedError::Scale(2)));
-        assert_eq!(parse_fixed("", 2), Err(FixedError::Decimal(DecimalError::Empty)));
-        assert_eq!(parse_fixed("NaN", 2), Err(FixedError::Decimal(DecimalError::NotANumber)));
-        assert_eq!(parse_fixed("-1", 2), Err(FixedError::Decimal(DecimalError::Negative)));
-        assert_eq!(parse_fixed("1e3", 2), Err(FixedError::Decimal(DecimalError::Exponent)));
-        assert_eq!(parse_fixed("99999999999999999999", 2), Err(FixedError::Decimal(DecimalError::TooLong)));
+        assert_eq!(
+            parse_fixed("", 2),
+            Err(FixedError::Decimal(DecimalError::Empty))
+        );
+        assert_eq!(
+            parse_fixed("NaN", 2),
+            Err(FixedError::Decimal(DecimalError::NotANumber))
+        );
+        assert_eq!(
+            parse_fixed("-1", 2),
+            Err(FixedError::Decimal(DecimalError::Negative))
+        );
+        assert_eq!(
+            parse_fixed("1e3", 2),
+            Err(FixedError::Decimal(DecimalError::Exponent))
+        );
+        assert_eq!(
+            parse_fixed("99999999999999999999", 2),
+            Err(FixedError::Decimal(DecimalError::TooLong))
+        );
     }
 
     proptest::proptest! {

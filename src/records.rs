@@ -122,10 +122,14 @@ impl Reading {
     pub fn upper_bound(self) -> Option<(Decimal, bool, &'static str)> {
         match self {
             // O2 at or above ambient 20.9 % leaves no combustion gas (App. F Eq. F-5 divides by 20.9 − O2).
-            Reading::O2PctWet | Reading::O2PctDry => Some((dec!(20.9), true, "O2 must be below 20.9 %")),
+            Reading::O2PctWet | Reading::O2PctDry => {
+                Some((dec!(20.9), true, "O2 must be below 20.9 %"))
+            }
             // 100 % moisture leaves no dry gas (App. F Eq. F-2 multiplies by 100 − H2O).
             Reading::H2oPct => Some((dec!(100), true, "moisture must be below 100 %")),
-            Reading::Co2PctWet | Reading::Co2PctDry => Some((dec!(100), false, "CO2 cannot exceed 100 %")),
+            Reading::Co2PctWet | Reading::Co2PctDry => {
+                Some((dec!(100), false, "CO2 cannot exceed 100 %"))
+            }
             _ => None,
         }
     }
@@ -152,9 +156,16 @@ impl HourRow {
 
     /// The first field that differs from `held`, for refusal messages.
     pub fn first_difference(&self, held: &HourRow) -> Option<(&'static str, String, String)> {
-        let show = |v: Option<Decimal>| v.map(|d| d.normalize().to_string()).unwrap_or_else(|| "empty".into());
+        let show = |v: Option<Decimal>| {
+            v.map(|d| d.normalize().to_string())
+                .unwrap_or_else(|| "empty".into())
+        };
         if self.op_time_centi != held.op_time_centi {
-            return Some(("op_time", held.op_time_hr().to_string(), self.op_time_hr().to_string()));
+            return Some((
+                "op_time",
+                held.op_time_hr().to_string(),
+                self.op_time_hr().to_string(),
+            ));
         }
         Reading::ALL
             .into_iter()
@@ -165,12 +176,20 @@ impl HourRow {
 
 /// Local standard time of an hour index, for messages and reports.
 pub fn hour_label(hour: i64) -> String {
-    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1).expect("valid date").and_hms_opt(0, 0, 0).expect("valid time");
-    (epoch + chrono::Duration::hours(hour)).format("%Y-%m-%dT%H:00").to_string()
+    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1)
+        .expect("valid date")
+        .and_hms_opt(0, 0, 0)
+        .expect("valid time");
+    (epoch + chrono::Duration::hours(hour))
+        .format("%Y-%m-%dT%H:00")
+        .to_string()
 }
 
 /// The hour index of a local standard time `YYYY-MM-DDTHH:00`.
 pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
-    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1).expect("valid date").and_hms_opt(0, 0, 0).expect("valid time");
+    let epoch = NaiveDate::from_ymd_opt(1970, 1, 1)
+        .expect("valid date")
+        .and_hms_opt(0, 0, 0)
+        .expect("valid time");
     (t - epoch).num_hours()
 }
