@@ -74,6 +74,18 @@ impl RowError {
 pub struct FileErrors {
     pub file: String,
     pub errors: Vec<RowError>,
+    /// Errors counted but not kept, so a huge bad file cannot fill memory.
+    pub omitted: usize,
+}
+
+impl FileErrors {
+    pub fn new(file: &str, errors: Vec<RowError>) -> FileErrors {
+        FileErrors {
+            file: file.to_string(),
+            errors,
+            omitted: 0,
+        }
+    }
 }
 
 impl fmt::Display for FileErrors {

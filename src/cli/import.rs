@@ -1,4 +1,4 @@
-use crate::import::{analyses, fuel, InputFile, Outcome};
+use crate::import::{analyses, fuel, hourly, InputFile, Outcome};
 use crate::ledger::Ledger;
 use clap::{Args, Subcommand};
 use std::path::{Path, PathBuf};
@@ -16,6 +16,12 @@ pub enum ImportCommand {
         after_help = "Examples:\n  flue import fuel samples/fuel.csv\n  flue import fuel june.csv --correct \"meter K1 re-read\""
     )]
     Fuel(ImportArgs),
+    /// Hourly monitor data: unit,hour,op_time,load_mw,so2_ppm_wet,nox_ppm_dry,o2_pct_dry,co2_pct_wet,flow_scfh_wet,h2o_pct
+    /// (a dry/wet variant such as so2_ppm_dry may replace a concentration column; an empty cell is a missing reading)
+    #[command(
+        after_help = "Examples:\n  flue import hourly k2-2025.csv\n  flue import hourly k2-fix.csv --correct \"flow monitor re-calibrated\""
+    )]
+    Hourly(ImportArgs),
 }
 
 #[derive(Debug, Args)]
@@ -46,6 +52,10 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
                 a.correct.as_deref(),
                 &stamp,
             )?,
+        ),
+        ImportCommand::Hourly(a) => (
+            a,
+            hourly::import(&mut ledger, &a.file, a.correct.as_deref(), &stamp)?,
         ),
         ImportCommand::Fuel(a) => (
             a,

@@ -140,11 +140,7 @@ pub fn import(
         let actions = plan(&rows, &held, correct, &mut errors);
         check_dependent_records(tx, &rows, &actions, &mut errors)?;
         if !errors.is_empty() {
-            return Err(FileErrors {
-                file: file.name.clone(),
-                errors,
-            }
-            .into());
+            return Err(FileErrors::new(&file.name, errors).into());
         }
         let done = outcome(&actions);
         if done.added + done.corrected == 0 {

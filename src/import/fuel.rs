@@ -163,10 +163,7 @@ pub fn import(
         }
         if !errors.is_empty() {
             errors.sort_by_key(|e| e.line);
-            return Err(FileErrors {
-                file: file.name.clone(),
-                errors,
-            }
+            return Err(FileErrors::new(&file.name, errors)
             .into());
         }
         let done = outcome(&actions);

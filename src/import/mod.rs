@@ -9,6 +9,7 @@
 
 pub mod analyses;
 pub mod fuel;
+pub mod hourly;
 pub mod site;
 
 use crate::csvread::{Columns, FileErrors, Reader, Record, RowError};
@@ -105,10 +106,7 @@ pub fn parse_rows<T>(
     optional: &[&str],
     mut parse_row: impl FnMut(&Columns, &Record, &mut Vec<RowError>) -> Option<T>,
 ) -> Result<Vec<(usize, T)>, FileErrors> {
-    let fail = |errors| FileErrors {
-        file: file.name.clone(),
-        errors,
-    };
+    let fail = |errors| FileErrors::new(&file.name, errors);
     let mut reader = Reader::new(file.bytes.as_slice());
     let mut record = Record::default();
     let mut errors = Vec::new();

@@ -28,10 +28,7 @@ pub fn load(
     file: &InputFile,
     stamp: &Stamp,
 ) -> Result<SiteOutcome, ImportError> {
-    let fail = |errors: Vec<RowError>| FileErrors {
-        file: file.name.clone(),
-        errors,
-    };
+    let fail = |errors: Vec<RowError>| FileErrors::new(&file.name, errors);
     let source = std::str::from_utf8(&file.bytes).map_err(|e| {
         fail(vec![RowError::line(
             line_at(&file.bytes, e.valid_up_to()),

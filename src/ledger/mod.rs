@@ -6,8 +6,11 @@
 //! foreign keys are on; a file that is not ours is refused (R3); input rows
 //! are only ever inserted.
 
+mod hourly;
 pub mod migrations;
 mod rows;
+
+pub use hourly::HourSource;
 
 use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
 use rusqlite::{config::DbConfig, Connection, ErrorCode, OpenFlags, TransactionBehavior};

@@ -1,0 +1,430 @@
+//! `flue import hourly`: continuous monitor data, one row per unit-hour.
+//!
+//! The file is streamed: memory holds one record, the line numbers of the
+//! unit-hours seen (for duplicates, bounded by units × hours, not by file
+//! size) and the first errors. Every row is checked, then written in the
+//! same transaction; any error rolls everything back.
+
+use super::{ImportError, Outcome, Stamp};
+use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERRORS_SHOWN_MAX};
+use crate::decimal::{parse_fixed, FixedError};
+use crate::emissions::method::Method;
+use crate::ledger::{Ledger, NewBatch, Reads};
+use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
+use chrono::{Datelike, NaiveDateTime};
+use rust_decimal::Decimal;
+use sha2::{Digest, Sha256};
+use std::collections::HashMap;
+use std::io::{BufRead, BufReader, Read};
+use std::path::Path;
+
+pub const REQUIRED: &[&str] = &["unit", "hour", "op_time"];
+
+/// Hours in a leap year: 366 days × 24.
+const HOURS_PER_YEAR_MAX: usize = 8784;
+
+/// A reader that hashes what passes through it.
+struct Hashing<R> {
+    inner: R,
+    hasher: Sha256,
+}
+
+impl<R: Read> Read for Hashing<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.hasher.update(&buf[..n]);
+        Ok(n)
+    }
+}
+
+/// Where each column of the header sits.
+struct Layout {
+    unit: usize,
+    hour: usize,
+    op_time: usize,
+    readings: [Option<usize>; Reading::COUNT],
+    names: Vec<String>,
+}
+
+impl Layout {
+    fn new(columns: &Columns) -> Layout {
+        let idx = |n: &str| columns.index(n);
+        let mut readings = [None; Reading::COUNT];
+        for r in Reading::ALL {
+            readings[r.index()] = idx(r.column());
+        }
+        Layout {
+            unit: idx("unit").expect("required column"),
+            hour: idx("hour").expect("required column"),
+            op_time: idx("op_time").expect("required column"),
+            readings,
+            names: columns.names.clone(),
+        }
+    }
+}
+
+/// Errors kept for the message; the rest are only counted.
+struct Errors {
+    kept: Vec<RowError>,
+    omitted: usize,
+}
+
+impl Errors {
+    fn push(&mut self, e: RowError) {
+        // Keep a few past the shown maximum so sorting by line stays honest.
+        if self.kept.len() < ERRORS_SHOWN_MAX * 5 {
+            self.kept.push(e);
+        } else {
+            self.omitted += 1;
+        }
+    }
+
+    fn is_empty(&self) -> bool {
+        self.kept.is_empty()
+    }
+}
+
+/// Parse `YYYY-MM-DDTHH:00` by hand: chrono's format parser costs more
+/// than the rest of the row.
+fn parse_hour(text: &str) -> Result<NaiveDateTime, String> {
+    let b = text.as_bytes();
+    let shape = "not in the form YYYY-MM-DDTHH:00";
+    if b.len() != 16 || b[4] != b'-' || b[7] != b'-' || b[10] != b'T' || &b[13..] != b":00" {
+        return Err(shape.into());
+    }
+    let num = |r: std::ops::Range<usize>| -> Result<u32, String> {
+        b[r].iter().try_fold(0u32, |acc, &c| {
+            if c.is_ascii_digit() {
+                Ok(acc * 10 + u32::from(c - b'0'))
+            } else {
+                Err(shape.to_string())
+            }
+        })
+    };
+    let (y, m, d, h) = (num(0..4)?, num(5..7)?, num(8..10)?, num(11..13)?);
+    chrono::NaiveDate::from_ymd_opt(y as i32, m, d)
+        .and_then(|date| date.and_hms_opt(h, 0, 0))
+        .ok_or_else(|| "not a real hour".into())
+}
+
+fn fixed_message(e: FixedError) -> String {
+    e.to_string()
+}
+
+/// Parse one record into a unit name and an hour row, or report its errors.
+fn parse_record<'r>(
+    layout: &Layout,
+    rec: &'r Record,
+    errors: &mut Errors,
+) -> Option<(&'r str, i32, HourRow)> {
+    let line = rec.line;
+    let mut ok = true;
+    let mut fail = |col: usize, message: String| {
+        errors.push(RowError::at(line, col + 1, &layout.names[col], message));
+        ok = false;
+    };
+    let unit = rec.get(layout.unit);
+    if unit.is_empty() || unit.trim() != unit {
+        fail(
+            layout.unit,
+            format!("expected a unit id, found {}", shown(unit)),
+        );
+    }
+    let hour = match parse_hour(rec.get(layout.hour)) {
+        Ok(t) => Some((t.year(), hour_index(t))),
+        Err(why) => {
+            fail(
+                layout.hour,
+                format!(
+                    "expected an hour YYYY-MM-DDTHH:00, found {} ({why})",
+                    shown(rec.get(layout.hour))
+                ),
+            );
+            None
+        }
+    };
+    let op_text = rec.get(layout.op_time);
+    let op_time_centi = match parse_fixed(op_text, OP_TIME_SCALE) {
+        Ok(v) if v <= 100 => Some(v),
+        Ok(_) => {
+            fail(
+                layout.op_time,
+                format!(
+                    "expected an operating time from 0.00 to 1.00, found {}",
+                    shown(op_text)
+                ),
+            );
+            None
+        }
+        Err(e) => {
+            fail(
+                layout.op_time,
+                format!(
+                    "expected an operating time from 0.00 to 1.00, found {} ({})",
+                    shown(op_text),
+                    fixed_message(e)
+                ),
+            );
+            None
+        }
+    };
+    let mut readings = [None; Reading::COUNT];
+    for r in Reading::ALL {
+        let Some(col) = layout.readings[r.index()] else {
+            continue;
+        };
+        let text = rec.get(col);
+        if text.is_empty() {
+            continue;
+        }
+        match parse_fixed(text, READING_SCALE) {
+            Ok(v) => {
+                if let Some((bound, exclusive, why)) = r.upper_bound() {
+                    let d = Decimal::new(v, READING_SCALE);
+                    if d > bound || (exclusive && d == bound) {
+                        fail(col, format!("{why}, found {}", shown(text)));
+                        continue;
+                    }
+                }
+                readings[r.index()] = Some(v);
+            }
+            Err(e) => fail(
+                col,
+                format!(
+                    "expected a decimal of zero or more, found {} ({})",
+                    shown(text),
+                    fixed_message(e)
+                ),
+            ),
+        }
+    }
+    for (wet, dry) in [
+        (Reading::So2PpmWet, Reading::So2PpmDry),
+        (Reading::NoxPpmWet, Reading::NoxPpmDry),
+        (Reading::O2PctWet, Reading::O2PctDry),
+        (Reading::Co2PctWet, Reading::Co2PctDry),
+    ] {
+        if readings[wet.index()].is_some() && readings[dry.index()].is_some() {
+            let col = layout.readings[dry.index()].expect("present");
+            fail(
+                col,
+                format!(
+                    "both {} and {} are given for one hour; give one basis",
+                    wet.column(),
+                    dry.column()
+                ),
+            );
+        }
+    }
+    if !ok {
+        return None;
+    }
+    let (year, hour) = hour?;
+    Some((
+        unit,
+        year,
+        HourRow {
+            hour,
+            op_time_centi: op_time_centi?,
+            readings,
+        },
+    ))
+}
+
+/// What the import knows of each unit named in the file.
+struct UnitState {
+    /// Line of each hour seen in this file, per year (0 = not seen).
+    lines: HashMap<i32, Vec<u32>>,
+    /// Years in which the ledger already holds hours of this unit.
+    held_years: HashMap<i32, bool>,
+}
+
+/// Import an hourly file: all rows or none.
+pub fn import(
+    ledger: &mut Ledger,
+    path: &Path,
+    correct: Option<&str>,
+    stamp: &Stamp,
+) -> Result<Outcome, ImportError> {
+    let name = path.display().to_string();
+    let meta = std::fs::metadata(path)
+        .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
+    if !meta.is_file() {
+        return Err(ImportError::Read(format!("{name}: not a regular file")));
+    }
+    let file = std::fs::File::open(path)
+        .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
+    let mut input = BufReader::with_capacity(
+        1 << 20,
+        Hashing {
+            inner: file,
+            hasher: Sha256::new(),
+        },
+    );
+    ledger.write(|tx| {
+        let sites = tx.sites()?;
+        let cems_units: HashMap<&str, bool> = sites
+            .iter()
+            .flat_map(|s| &s.units)
+            .map(|u| (u.id.as_str(), u.methods.iter().any(|m| matches!(m.method, Method::Cems { .. }))))
+            .collect();
+        let mut reader = Reader::new(&mut input);
+        let mut record = Record::default();
+        let mut errors = Errors {
+            kept: Vec::new(),
+            omitted: 0,
+        };
+        let header_ok = reader.next_into(&mut record).map_err(|e| FileErrors::new(&name, vec![e]))?;
+        if !header_ok {
+            return Err(FileErrors::new(&name, vec![RowError::line(1, "empty file: expected a header row")]).into());
+        }
+        let optional: Vec<&str> = Reading::ALL.iter().map(|r| r.column()).collect();
+        let columns = Columns::from_header(&record, REQUIRED, &optional).map_err(|e| FileErrors::new(&name, e))?;
+        let layout = Layout::new(&columns);
+        let batch_id = tx.next_batch_id()?;
+        let mut insert = tx.hour_inserter()?;
+        let mut units: HashMap<String, UnitState> = HashMap::new();
+        let mut done = Outcome::default();
+        loop {
+            match reader.next_into(&mut record) {
+                Ok(false) => break,
+                Ok(true) => {}
+                Err(e) => {
+                    errors.push(e);
+                    break;
+                }
+            }
+            if record.len() != layout.names.len() {
+                errors.push(RowError::line(
+                    record.line,
+                    format!("expected {} fields, found {}", layout.names.len(), record.len()),
+                ));
+                continue;
+            }
+            let Some((unit, year, row)) = parse_record(&layout, &record, &mut errors) else { continue };
+            let line = record.line;
+            match cems_units.get(unit) {
+                None => {
+                    errors.push(RowError::at(
+                        line,
+                        layout.unit + 1,
+                        "unit",
+                        format!("unknown unit {} (not in any site file)", shown(unit)),
+                    ));
+                    continue;
+                }
+                Some(false) => {
+                    errors.push(RowError::at(
+                        line,
+                        layout.unit + 1,
+                        "unit",
+                        format!("unit {unit} has no cems method in its site file, so its hourly data would not be used"),
+                    ));
+                    continue;
+                }
+                Some(true) => {}
+            }
+            let year_start = hour_index(
+                chrono::NaiveDate::from_ymd_opt(year, 1, 1)
+                    .expect("valid year")
+                    .and_hms_opt(0, 0, 0)
+                    .expect("midnight"),
+            );
+            if !units.contains_key(unit) {
+                let fresh = UnitState {
+                    lines: HashMap::new(),
+                    held_years: HashMap::new(),
+                };
+                units.insert(unit.to_string(), fresh);
+            }
+            let state = units.get_mut(unit).expect("inserted above");
+            let slot = &mut state
+                .lines
+                .entry(year)
+                .or_insert_with(|| vec![0; HOURS_PER_YEAR_MAX])[(row.hour - year_start) as usize];
+            if *slot != 0 {
+                errors.push(RowError::line(
+                    line,
+                    format!("unit {unit} hour {} appears twice in this file, on lines {} and {line}", hour_label(row.hour), *slot),
+                ));
+                continue;
+            }
+            *slot = u32::try_from(line).unwrap_or(u32::MAX);
+            let held_year = match state.held_years.get(&year) {
+                Some(h) => *h,
+                None => {
+                    let h = tx.holds_hours(unit, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
+                    state.held_years.insert(year, h);
+                    h
+                }
+            };
+            let held = if held_year { tx.current_hour(unit, row.hour)? } else { None };
+            let corrects = match held {
+                None => None,
+                Some((held_id, held_row)) => match row.first_difference(&held_row) {
+                    None => {
+                        done.present += 1;
+                        continue;
+                    }
+                    Some(_) if correct.is_some() => Some(held_id),
+                    Some((field, was, now)) => {
+                        errors.push(RowError::line(
+                            line,
+                            format!(
+                                "unit {unit} hour {} is already held with other values (field {field}: held {was}, here {now}); \
+                                 to supersede it, import with --correct REASON",
+                                hour_label(row.hour)
+                            ),
+                        ));
+                        continue;
+                    }
+                },
+            };
+            if !errors.is_empty() {
+                // Once anything is refused nothing will be written: just keep checking.
+                continue;
+            }
+            let id = insert.insert(batch_id, line, unit, &row)?;
+            match corrects {
+                Some(old) => {
+                    tx.insert_hour_correction(id, old, correct.expect("checked"))?;
+                    done.corrected += 1;
+                }
+                None => done.added += 1,
+            }
+        }
+        if !errors.is_empty() {
+            errors.kept.sort_by_key(|e| e.line);
+            let mut fe = FileErrors::new(&name, errors.kept);
+            fe.omitted = errors.omitted;
+            return Err(fe.into());
+        }
+        drop(reader);
+        drop(insert);
+        // Read to the end so the digest covers the whole file.
+        while !input.fill_buf().map_err(|e| ImportError::Read(format!("{name}: {e}")))?.is_empty() {
+            let n = input.buffer().len();
+            input.consume(n);
+        }
+        if done.added + done.corrected == 0 && done.present == 0 {
+            return Err(FileErrors::new(&name, vec![RowError::line(1, "no data rows after the header")]).into());
+        }
+        if done.added + done.corrected == 0 {
+            return Ok(done);
+        }
+        let sha256 = super::hex(&input.get_ref().hasher.clone().finalize());
+        let written = tx.insert_batch(&NewBatch {
+            kind: "hourly",
+            file_name: &name,
+            sha256: &sha256,
+            rows_added: done.added,
+            rows_corrected: done.corrected,
+            rows_present: done.present,
+            at: &stamp.at,
+            by: &stamp.by,
+            reason: correct.filter(|_| done.corrected > 0),
+        })?;
+        assert_eq!(written, batch_id, "the batch id was reserved inside this transaction");
+        Ok(done)
+    })
+}

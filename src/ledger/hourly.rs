@@ -1,0 +1,182 @@
+//! Hourly monitor rows: inserts and the streams reports read.
+
+use super::{Ledger, Result, Tx};
+use crate::records::{HourRow, Reading};
+use rusqlite::{params, Connection, OptionalExtension, Row};
+
+const READING_COLUMNS: &str =
+    "load_mw, so2_ppm_wet, so2_ppm_dry, nox_ppm_wet, nox_ppm_dry, o2_pct_wet, o2_pct_dry, \
+     co2_pct_wet, co2_pct_dry, flow_scfh_wet, h2o_pct";
+
+fn hour_row(r: &Row, first: usize) -> rusqlite::Result<HourRow> {
+    let mut readings = [None; Reading::COUNT];
+    for (i, slot) in readings.iter_mut().enumerate() {
+        *slot = r.get(first + 2 + i)?;
+    }
+    let row = HourRow {
+        hour: r.get(first)?,
+        op_time_centi: r.get(first + 1)?,
+        readings,
+    };
+    // The schema's CHECKs hold; assert again after reading (STYLE.md).
+    assert!(
+        (0..=100).contains(&row.op_time_centi),
+        "stored op_time out of range"
+    );
+    Ok(row)
+}
+
+impl Tx<'_> {
+    /// The id the next import batch will get. Safe inside `BEGIN IMMEDIATE`,
+    /// which holds the write lock until commit.
+    pub fn next_batch_id(&self) -> Result<i64> {
+        Ok(self.tx.query_row(
+            "SELECT coalesce(max(id), 0) + 1 FROM import_batches",
+            [],
+            |r| r.get(0),
+        )?)
+    }
+
+    /// Whether the ledger holds any hour of `unit` in `[from, to)`.
+    pub fn holds_hours(&self, unit: &str, from: i64, to: i64) -> Result<bool> {
+        let mut stmt = self.tx.prepare_cached(
+            "SELECT EXISTS (SELECT 1 FROM hourly WHERE unit = ?1 AND hour >= ?2 AND hour < ?3)",
+        )?;
+        Ok(stmt.query_row(params![unit, from, to], |r| r.get(0))?)
+    }
+
+    /// The unit-hour in force: the latest row, since a correction always comes later.
+    pub fn current_hour(&self, unit: &str, hour: i64) -> Result<Option<(i64, HourRow)>> {
+        let sql = format!(
+            "SELECT id, hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit = ?1 AND hour = ?2 ORDER BY id DESC LIMIT 1"
+        );
+        let mut stmt = self.tx.prepare_cached(&sql)?;
+        Ok(stmt
+            .query_row(params![unit, hour], |r| Ok((r.get(0)?, hour_row(r, 1)?)))
+            .optional()?)
+    }
+
+    /// A prepared insert for hourly rows, reused for a whole import.
+    pub fn hour_inserter(&self) -> Result<HourInserter<'_>> {
+        let stmt = self.tx.prepare(&format!(
+            "INSERT INTO hourly (batch_id, line, unit, hour, op_time, {READING_COLUMNS})
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16)"
+        ))?;
+        Ok(HourInserter { stmt })
+    }
+
+    pub fn insert_hour_correction(&self, id: i64, corrects_id: i64, reason: &str) -> Result<()> {
+        self.tx.execute(
+            "INSERT INTO hourly_corrections (id, corrects_id, reason) VALUES (?1, ?2, ?3)",
+            params![id, corrects_id, reason],
+        )?;
+        Ok(())
+    }
+}
+
+/// Where a stored hour came from, for explanations.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct HourSource {
+    pub id: i64,
+    pub file: String,
+    pub line: usize,
+    pub sha256: String,
+}
+
+impl Ledger {
+    /// Stream a unit's hours in force over `[from, to)`, in hour order.
+    pub fn each_hour(
+        &self,
+        unit: &str,
+        from: i64,
+        to: i64,
+        mut f: impl FnMut(&HourRow),
+    ) -> Result<()> {
+        each_hour(&self.conn, unit, from, to, &mut f)
+    }
+
+    /// The stored row in force for a unit-hour, with its source.
+    pub fn hour_with_source(&self, unit: &str, hour: i64) -> Result<Option<(HourRow, HourSource)>> {
+        let sql = format!(
+            "SELECT h.hour, h.op_time, {READING_COLUMNS}, h.id, b.file_name, h.line, b.sha256
+             FROM hourly h JOIN import_batches b ON b.id = h.batch_id
+             WHERE h.unit = ?1 AND h.hour = ?2 ORDER BY h.id DESC LIMIT 1"
+        );
+        let mut stmt = self.conn.prepare(&sql)?;
+        Ok(stmt
+            .query_row(params![unit, hour], |r| {
+                let row = hour_row(r, 0)?;
+                let n = 2 + Reading::COUNT;
+                let line: i64 = r.get(n + 2)?;
+                Ok((
+                    row,
+                    HourSource {
+                        id: r.get(n)?,
+                        file: r.get(n + 1)?,
+                        line: line as usize,
+                        sha256: r.get(n + 3)?,
+                    },
+                ))
+            })
+            .optional()?)
+    }
+}
+
+fn each_hour(
+    conn: &Connection,
+    unit: &str,
+    from: i64,
+    to: i64,
+    f: &mut impl FnMut(&HourRow),
+) -> Result<()> {
+    let sql = format!(
+        "SELECT hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit = ?1 AND hour >= ?2 AND hour < ?3 ORDER BY hour, id"
+    );
+    let mut stmt = conn.prepare(&sql)?;
+    let mut rows = stmt.query(params![unit, from, to])?;
+    // Rows of one hour arrive oldest first; the last of them is in force.
+    let mut pending: Option<HourRow> = None;
+    while let Some(r) = rows.next()? {
+        let row = hour_row(r, 0)?;
+        if let Some(p) = pending {
+            if p.hour != row.hour {
+                f(&p);
+            }
+        }
+        pending = Some(row);
+    }
+    if let Some(p) = pending {
+        f(&p);
+    }
+    Ok(())
+}
+
+/// Inserts hourly rows through one prepared statement.
+pub struct HourInserter<'a> {
+    stmt: rusqlite::Statement<'a>,
+}
+
+impl HourInserter<'_> {
+    pub fn insert(&mut self, batch_id: i64, line: usize, unit: &str, row: &HourRow) -> Result<i64> {
+        let r = &row.readings;
+        let id = self.stmt.insert(params![
+            batch_id,
+            line as i64,
+            unit,
+            row.hour,
+            row.op_time_centi,
+            r[0],
+            r[1],
+            r[2],
+            r[3],
+            r[4],
+            r[5],
+            r[6],
+            r[7],
+            r[8],
+            r[9],
+            r[10]
+        ])?;
+        Ok(id)
+    }
+}
