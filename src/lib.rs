@@ -1,11 +1,13 @@
 //! flue: an emissions compliance ledger for fuel-burning units.
 //!
 //! Modules in reading order: quantities and parsing, the pure emissions
-//! engine, the site file, input files, the ledger (all SQL), the report
-//! model and its renderers, and the command line.
+//! engine, the site file, the pure allowance book and reconciliation, input
+//! files, the ledger (all SQL), the report model and its renderers, and the
+//! command line.
 
 pub mod units;
 pub mod decimal;
 pub mod emissions;
 pub mod site;
+pub mod allowances;
 pub mod csvread;
