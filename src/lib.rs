@@ -1,8 +1,9 @@
 //! flue: an emissions compliance ledger for fuel-burning units.
 //!
 //! Modules in reading order: quantities and parsing, the pure emissions
-//! engine, the site file, input files, the ledger (all SQL), the report
-//! model and its renderers, and the command line.
+//! engine, the site file, the pure allowance book and reconciliation, input
+//! files, the ledger (all SQL), the report model and its renderers, and the
+//! command line.
 
 pub mod cli;
 pub mod compute;
@@ -14,4 +15,9 @@ pub mod ledger;
 pub mod records;
 pub mod report;
 pub mod site;
+<<<<<<< HEAD
 pub mod units;
+=======
+pub mod allowances;
+pub mod csvread;
+>>>>>>> allowances-core
