@@ -5,6 +5,7 @@
 //! files, the ledger (all SQL), the report model and its renderers, and the
 //! command line.
 
+pub mod allowances;
 pub mod cli;
 pub mod compute;
 pub mod csvread;
@@ -15,9 +16,4 @@ pub mod ledger;
 pub mod records;
 pub mod report;
 pub mod site;
-<<<<<<< HEAD
 pub mod units;
-=======
-pub mod allowances;
-pub mod csvread;
->>>>>>> allowances-core
