@@ -233,6 +233,7 @@ fn parse_record<'r>(
 
 /// What the import knows of each unit named in the file.
 struct UnitState {
+    unit_no: i64,
     /// Line of each hour seen in this file, per year (0 = not seen).
     lines: HashMap<i32, Vec<u32>>,
     /// Years in which the ledger already holds hours of this unit.
@@ -332,6 +333,7 @@ pub fn import(
             );
             if !units.contains_key(unit) {
                 let fresh = UnitState {
+                    unit_no: tx.hourly_unit_no(unit)?,
                     lines: HashMap::new(),
                     held_years: HashMap::new(),
                 };
@@ -353,12 +355,12 @@ pub fn import(
             let held_year = match state.held_years.get(&year) {
                 Some(h) => *h,
                 None => {
-                    let h = tx.holds_hours(unit, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
+                    let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
                     state.held_years.insert(year, h);
                     h
                 }
             };
-            let held = if held_year { tx.current_hour(unit, row.hour)? } else { None };
+            let held = if held_year { tx.current_hour(state.unit_no, row.hour)? } else { None };
             let corrects = match held {
                 None => None,
                 Some((held_id, held_row)) => match row.first_difference(&held_row) {
@@ -384,7 +386,7 @@ pub fn import(
                 // Once anything is refused nothing will be written: just keep checking.
                 continue;
             }
-            let id = insert.insert(batch_id, line, unit, &row)?;
+            let id = insert.insert(batch_id, line, state.unit_no, &row)?;
             match corrects {
                 Some(old) => {
                     tx.insert_hour_correction(id, old, correct.expect("checked"))?;

@@ -37,32 +37,55 @@ impl Tx<'_> {
         )?)
     }
 
-    /// Whether the ledger holds any hour of `unit` in `[from, to)`.
-    pub fn holds_hours(&self, unit: &str, from: i64, to: i64) -> Result<bool> {
+    /// The number hourly rows of `unit` carry, assigned on first use.
+    pub fn hourly_unit_no(&self, unit: &str) -> Result<i64> {
+        let found: Option<i64> = self
+            .tx
+            .query_row(
+                "SELECT unit_no FROM hourly_units WHERE unit = ?1",
+                [unit],
+                |r| r.get(0),
+            )
+            .optional()?;
+        match found {
+            Some(n) => Ok(n),
+            None => {
+                self.tx
+                    .execute("INSERT INTO hourly_units (unit) VALUES (?1)", [unit])?;
+                Ok(self.tx.last_insert_rowid())
+            }
+        }
+    }
+
+    /// Whether the ledger holds any hour of unit `unit_no` in `[from, to)`.
+    pub fn holds_hours(&self, unit_no: i64, from: i64, to: i64) -> Result<bool> {
         let mut stmt = self.tx.prepare_cached(
-            "SELECT EXISTS (SELECT 1 FROM hourly WHERE unit = ?1 AND hour >= ?2 AND hour < ?3)",
+            "SELECT EXISTS (SELECT 1 FROM hourly WHERE unit_no = ?1 AND hour >= ?2 AND hour < ?3)",
         )?;
-        Ok(stmt.query_row(params![unit, from, to], |r| r.get(0))?)
+        Ok(stmt.query_row(params![unit_no, from, to], |r| r.get(0))?)
     }
 
     /// The unit-hour in force: the latest row, since a correction always comes later.
-    pub fn current_hour(&self, unit: &str, hour: i64) -> Result<Option<(i64, HourRow)>> {
+    pub fn current_hour(&self, unit_no: i64, hour: i64) -> Result<Option<(i64, HourRow)>> {
         let sql = format!(
-            "SELECT id, hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit = ?1 AND hour = ?2 ORDER BY id DESC LIMIT 1"
+            "SELECT id, hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit_no = ?1 AND hour = ?2 ORDER BY id DESC LIMIT 1"
         );
         let mut stmt = self.tx.prepare_cached(&sql)?;
         Ok(stmt
-            .query_row(params![unit, hour], |r| Ok((r.get(0)?, hour_row(r, 1)?)))
+            .query_row(params![unit_no, hour], |r| Ok((r.get(0)?, hour_row(r, 1)?)))
             .optional()?)
     }
 
     /// A prepared insert for hourly rows, reused for a whole import.
     pub fn hour_inserter(&self) -> Result<HourInserter<'_>> {
         let stmt = self.tx.prepare(&format!(
-            "INSERT INTO hourly (batch_id, line, unit, hour, op_time, {READING_COLUMNS})
+            "INSERT INTO hourly (batch_id, line, unit_no, hour, op_time, {READING_COLUMNS})
              VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16)"
         ))?;
-        Ok(HourInserter { stmt })
+        Ok(HourInserter {
+            stmt,
+            conn: &self.tx,
+        })
     }
 
     pub fn insert_hour_correction(&self, id: i64, corrects_id: i64, reason: &str) -> Result<()> {
@@ -100,7 +123,8 @@ impl Ledger {
         let sql = format!(
             "SELECT h.hour, h.op_time, {READING_COLUMNS}, h.id, b.file_name, h.line, b.sha256
              FROM hourly h JOIN import_batches b ON b.id = h.batch_id
-             WHERE h.unit = ?1 AND h.hour = ?2 ORDER BY h.id DESC LIMIT 1"
+             JOIN hourly_units u ON u.unit_no = h.unit_no
+             WHERE u.unit = ?1 AND h.hour = ?2 ORDER BY h.id DESC LIMIT 1"
         );
         let mut stmt = self.conn.prepare(&sql)?;
         Ok(stmt
@@ -130,7 +154,9 @@ fn each_hour(
     f: &mut impl FnMut(&HourRow),
 ) -> Result<()> {
     let sql = format!(
-        "SELECT hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit = ?1 AND hour >= ?2 AND hour < ?3 ORDER BY hour, id"
+        "SELECT hour, op_time, {READING_COLUMNS} FROM hourly
+         WHERE unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1) AND hour >= ?2 AND hour < ?3
+         ORDER BY hour, id"
     );
     let mut stmt = conn.prepare(&sql)?;
     let mut rows = stmt.query(params![unit, from, to])?;
@@ -154,29 +180,29 @@ fn each_hour(
 /// Inserts hourly rows through one prepared statement.
 pub struct HourInserter<'a> {
     stmt: rusqlite::Statement<'a>,
+    conn: &'a Connection,
 }
 
 impl HourInserter<'_> {
-    pub fn insert(&mut self, batch_id: i64, line: usize, unit: &str, row: &HourRow) -> Result<i64> {
-        let r = &row.readings;
-        let id = self.stmt.insert(params![
-            batch_id,
-            line as i64,
-            unit,
-            row.hour,
-            row.op_time_centi,
-            r[0],
-            r[1],
-            r[2],
-            r[3],
-            r[4],
-            r[5],
-            r[6],
-            r[7],
-            r[8],
-            r[9],
-            r[10]
-        ])?;
-        Ok(id)
+    /// Insert one row. Binds by position without `dyn ToSql`: this is the
+    /// hot path of a fleet-year import.
+    pub fn insert(
+        &mut self,
+        batch_id: i64,
+        line: usize,
+        unit_no: i64,
+        row: &HourRow,
+    ) -> Result<i64> {
+        let s = &mut self.stmt;
+        s.raw_bind_parameter(1, batch_id)?;
+        s.raw_bind_parameter(2, line as i64)?;
+        s.raw_bind_parameter(3, unit_no)?;
+        s.raw_bind_parameter(4, row.hour)?;
+        s.raw_bind_parameter(5, row.op_time_centi)?;
+        for (i, v) in row.readings.iter().enumerate() {
+            s.raw_bind_parameter(6 + i, *v)?;
+        }
+        s.raw_execute()?;
+        Ok(self.conn.last_insert_rowid())
     }
 }
