@@ -5,6 +5,7 @@
 //! beside the code; every error names what was missing.
 #![deny(clippy::float_arithmetic)]
 
+pub mod cems;
 pub mod constants;
 pub mod engine;
 pub mod fuel;
