@@ -12,6 +12,7 @@ pub mod fuel;
 pub mod fuel_based;
 pub mod method;
 pub mod periods;
+pub mod substitute;
 
 use fuel::{FuelUom, GcvUom};
 use thiserror::Error;
