@@ -81,6 +81,22 @@ quantity!(
     "lb/MMBtu"
 );
 
+quantity!(
+    /// Mass rate, pounds per hour (40 CFR 75 App. F Eq. F-1, F-2).
+    LbPerHr,
+    "lb/hr"
+);
+quantity!(
+    /// Heat input rate, MMBtu per hour (40 CFR 75 App. F Eq. F-15 to F-18).
+    MmbtuPerHr,
+    "MMBtu/hr"
+);
+quantity!(
+    /// Mass rate, short tons per hour (40 CFR 75 App. F Eq. F-11).
+    TonsPerHr,
+    "tons/hr"
+);
+
 impl Lb {
     /// Pounds to short tons (40 CFR 75 App. F Eq. F-3: Σ lb / 2000).
     pub fn to_tons(self) -> Tons {

@@ -5,12 +5,14 @@
 //! beside the code; every error names what was missing.
 #![deny(clippy::float_arithmetic)]
 
+pub mod cems;
 pub mod constants;
 pub mod engine;
 pub mod fuel;
 pub mod fuel_based;
 pub mod method;
 pub mod periods;
+pub mod substitute;
 
 use fuel::{FuelUom, GcvUom};
 use thiserror::Error;
