@@ -90,8 +90,15 @@ pub fn so2_lb_per_hr_f2(so2_ppm_dry: Decimal, flow_scfh_wet: Decimal, h2o_pct: D
 ///
 /// Source: 40 CFR 75 App. F Eq. F-5, `E = K · Ch · F · 20.9/(20.9 − %O2)`
 /// (K verified, form from memory); Method 19 Eq. 19-1 is the same form.
-pub fn nox_lb_per_mmbtu_f5(nox_ppm_dry: Decimal, o2_pct_dry: Decimal, f_dscf_per_mmbtu: Decimal) -> LbPerMmbtu {
-    LbPerMmbtu(K_NOX_LB_PER_SCF_PPM * nox_ppm_dry * f_dscf_per_mmbtu * O2_AMBIENT_PCT / (O2_AMBIENT_PCT - o2_pct_dry))
+pub fn nox_lb_per_mmbtu_f5(
+    nox_ppm_dry: Decimal,
+    o2_pct_dry: Decimal,
+    f_dscf_per_mmbtu: Decimal,
+) -> LbPerMmbtu {
+    LbPerMmbtu(
+        K_NOX_LB_PER_SCF_PPM * nox_ppm_dry * f_dscf_per_mmbtu * O2_AMBIENT_PCT
+            / (O2_AMBIENT_PCT - o2_pct_dry),
+    )
 }
 
 /// NOx rate, NOx and CO2 on the same moisture basis.
@@ -99,7 +106,11 @@ pub fn nox_lb_per_mmbtu_f5(nox_ppm_dry: Decimal, o2_pct_dry: Decimal, f_dscf_per
 /// Source: 40 CFR 75 App. F Eq. F-6, `E = K · Ch · Fc · 100/%CO2` (K
 /// verified, form from memory); Method 19 Eq. 19-6 (dry) and 19-7 (wet)
 /// have the same form.
-pub fn nox_lb_per_mmbtu_f6(nox_ppm: Decimal, co2_pct: Decimal, fc_scf_per_mmbtu: Decimal) -> LbPerMmbtu {
+pub fn nox_lb_per_mmbtu_f6(
+    nox_ppm: Decimal,
+    co2_pct: Decimal,
+    fc_scf_per_mmbtu: Decimal,
+) -> LbPerMmbtu {
     LbPerMmbtu(K_NOX_LB_PER_SCF_PPM * nox_ppm * fc_scf_per_mmbtu * HUNDRED / co2_pct)
 }
 
@@ -166,7 +177,11 @@ pub fn nox_lb_per_mmbtu_m19_5(
 ///
 /// Source: 40 CFR 75 App. F §3.3.4.2 ("Eq. 19-5D", verified text). It is
 /// Eq. F-5 evaluated at the cap.
-pub fn nox_lb_per_mmbtu_m19_5d(nox_ppm_dry: Decimal, o2_cap_pct_dry: Decimal, f_dscf_per_mmbtu: Decimal) -> LbPerMmbtu {
+pub fn nox_lb_per_mmbtu_m19_5d(
+    nox_ppm_dry: Decimal,
+    o2_cap_pct_dry: Decimal,
+    f_dscf_per_mmbtu: Decimal,
+) -> LbPerMmbtu {
     nox_lb_per_mmbtu_f5(nox_ppm_dry, o2_cap_pct_dry, f_dscf_per_mmbtu)
 }
 
@@ -195,7 +210,12 @@ pub fn nox_lb_per_mmbtu_m19_9(
     fc_scf_per_mmbtu: Decimal,
 ) -> LbPerMmbtu {
     LbPerMmbtu(
-        K_NOX_LB_PER_SCF_PPM * nox_ppm_dry * fc_scf_per_mmbtu * HUNDRED * (Decimal::ONE - bws(h2o_pct)) / co2_pct_wet,
+        K_NOX_LB_PER_SCF_PPM
+            * nox_ppm_dry
+            * fc_scf_per_mmbtu
+            * HUNDRED
+            * (Decimal::ONE - bws(h2o_pct))
+            / co2_pct_wet,
     )
 }
 
@@ -239,7 +259,11 @@ pub fn co2_tons_per_hr_f11(co2_pct_wet: Decimal, flow_scfh_wet: Decimal) -> Tons
 ///
 /// Source: 40 CFR 75 App. F §4.1 text: the Eq. F-2 form with K = 5.7 × 10⁻⁷
 /// and %CO2 dry (verified text, form from memory).
-pub fn co2_tons_per_hr_f11_dry(co2_pct_dry: Decimal, flow_scfh_wet: Decimal, h2o_pct: Decimal) -> TonsPerHr {
+pub fn co2_tons_per_hr_f11_dry(
+    co2_pct_dry: Decimal,
+    flow_scfh_wet: Decimal,
+    h2o_pct: Decimal,
+) -> TonsPerHr {
     TonsPerHr(K_CO2_TONS_PER_SCF_PCT * co2_pct_dry * flow_scfh_wet * dry_fraction(h2o_pct))
 }
 
@@ -248,7 +272,8 @@ pub fn co2_tons_per_hr_f11_dry(co2_pct_dry: Decimal, flow_scfh_wet: Decimal, h2o
 /// Source: 40 CFR 75 App. F Eq. F-14a, `CO2d = 100 · (Fc/F) · (20.9 − O2d)/20.9`
 /// (form from memory); negative → 0.0 % (verified).
 pub fn co2_pct_dry_f14a(o2_pct_dry: Decimal, f: FFactors) -> Decimal {
-    let co2 = HUNDRED * (f.fc_scf_per_mmbtu / f.f_dscf_per_mmbtu) * (O2_AMBIENT_PCT - o2_pct_dry) / O2_AMBIENT_PCT;
+    let co2 = HUNDRED * (f.fc_scf_per_mmbtu / f.f_dscf_per_mmbtu) * (O2_AMBIENT_PCT - o2_pct_dry)
+        / O2_AMBIENT_PCT;
     co2.max(Decimal::ZERO)
 }
 
@@ -289,7 +314,9 @@ pub fn heat_input_mmbtu_per_hr_f16(
     h2o_pct: Decimal,
     fc_scf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
-    MmbtuPerHr(flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * fc_scf_per_mmbtu) * co2_pct_dry / HUNDRED)
+    MmbtuPerHr(
+        flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * fc_scf_per_mmbtu) * co2_pct_dry / HUNDRED,
+    )
 }
 
 /// Heat input rate from wet O2, wet flow and moisture, before the floor.
@@ -304,7 +331,8 @@ pub fn heat_input_mmbtu_per_hr_f17(
     f_dscf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
     MmbtuPerHr(
-        flow_scfh_wet / f_dscf_per_mmbtu * (O2_AMBIENT_PCT / HUNDRED * (HUNDRED - h2o_pct) - o2_pct_wet)
+        flow_scfh_wet / f_dscf_per_mmbtu
+            * (O2_AMBIENT_PCT / HUNDRED * (HUNDRED - h2o_pct) - o2_pct_wet)
             / O2_AMBIENT_PCT,
     )
 }
@@ -320,7 +348,8 @@ pub fn heat_input_mmbtu_per_hr_f18(
     f_dscf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
     MmbtuPerHr(
-        flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * f_dscf_per_mmbtu) * (O2_AMBIENT_PCT - o2_pct_dry)
+        flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * f_dscf_per_mmbtu)
+            * (O2_AMBIENT_PCT - o2_pct_dry)
             / O2_AMBIENT_PCT,
     )
 }
@@ -532,8 +561,14 @@ impl Equation {
     fn forms(self) -> (&'static str, &'static str) {
         match self {
             Equation::F1 => ("Eh = K · Ch · Qh", "{} × {} × {}"),
-            Equation::F2 => ("Eh = K · Chp · Qhs · (100 − %H2O)/100", "{} × {} × {} × (100 − {})/100"),
-            Equation::F5 => ("E = K · Ch · F · 20.9/(20.9 − %O2)", "{} × {} × {} × 20.9/(20.9 − {})"),
+            Equation::F2 => (
+                "Eh = K · Chp · Qhs · (100 − %H2O)/100",
+                "{} × {} × {} × (100 − {})/100",
+            ),
+            Equation::F5 => (
+                "E = K · Ch · F · 20.9/(20.9 − %O2)",
+                "{} × {} × {} × 20.9/(20.9 − {})",
+            ),
             Equation::F6 => ("E = K · Ch · Fc · 100/%CO2", "{} × {} × {} × 100/{}"),
             Equation::M19_3 => (
                 "E = K · Cws · Fd · 20.9/(20.9 · (1 − %H2O/100) − %O2w)",
@@ -564,7 +599,10 @@ impl Equation {
                 "{} × {} × {} × 100 × (1 − {}/100)/{}",
             ),
             Equation::F11 => ("Eh = K · Ch · Qh", "{} × {} × {}"),
-            Equation::F11Dry => ("Eh = K · Chp · Qh · (100 − %H2O)/100", "{} × {} × {} × (100 − {})/100"),
+            Equation::F11Dry => (
+                "Eh = K · Chp · Qh · (100 − %H2O)/100",
+                "{} × {} × {} × (100 − {})/100",
+            ),
             Equation::F14a => (
                 "CO2d = 100 · (Fc/F) · (20.9 − O2d)/20.9",
                 "100 × ({}/{}) × (20.9 − {})/20.9",
@@ -586,7 +624,9 @@ impl Equation {
                 "HI = Qw · ((100 − %H2O)/(100 · F)) · (20.9 − %O2d)/20.9",
                 "{} × ((100 − {})/(100 × {})) × (20.9 − {})/20.9",
             ),
-            Equation::So2Mass | Equation::Co2Mass | Equation::HeatInputAmount => ("M = E · t", "{} × {}"),
+            Equation::So2Mass | Equation::Co2Mass | Equation::HeatInputAmount => {
+                ("M = E · t", "{} × {}")
+            }
             Equation::F24 => ("M = ER · HI · t", "{} × {} × {}"),
             Equation::Substituted => ("substitute value", "{}"),
         }
@@ -691,7 +731,11 @@ impl fmt::Display for Formula<'_> {
             f.write_str("; a missing moisture or diluent reading took its conservative bound")?;
         }
         if let Some(dp) = c.rounded_dp {
-            write!(f, "; rounded to {dp} decimals (part75) = {}", c.value.normalize())?;
+            write!(
+                f,
+                "; rounded to {dp} decimals (part75) = {}",
+                c.value.normalize()
+            )?;
         }
         Ok(())
     }
@@ -858,7 +902,11 @@ pub fn nox_rate_measured(input: &HourInput, unit: &CemsUnit) -> Option<Calc> {
                     } else {
                         Equation::F5
                     };
-                    let mut c = Calc::new(eq, &[k, nox, fd, o2_used], nox_lb_per_mmbtu_f5(nox, o2_used, fd).0);
+                    let mut c = Calc::new(
+                        eq,
+                        &[k, nox, fd, o2_used],
+                        nox_lb_per_mmbtu_f5(nox, o2_used, fd).0,
+                    );
                     c.cap_replaced_pct = replaced;
                     c
                 }
@@ -930,9 +978,11 @@ pub fn nox_rate_measured(input: &HourInput, unit: &CemsUnit) -> Option<Calc> {
             };
             let co2_basis = co2_measured.basis;
             let mut c = match (b.nox, co2_basis) {
-                (Basis::Dry, Basis::Dry) | (Basis::Wet, Basis::Wet) => {
-                    Calc::new(Equation::F6, &[k, nox, fc, co2], nox_lb_per_mmbtu_f6(nox, co2, fc).0)
-                }
+                (Basis::Dry, Basis::Dry) | (Basis::Wet, Basis::Wet) => Calc::new(
+                    Equation::F6,
+                    &[k, nox, fc, co2],
+                    nox_lb_per_mmbtu_f6(nox, co2, fc).0,
+                ),
                 (Basis::Wet, Basis::Dry) => {
                     let (h2o, filled) = moisture(input, unit, MoistureSide::Max);
                     let mut c = Calc::new(
@@ -991,8 +1041,13 @@ fn derive_co2(input: &HourInput, unit: &CemsUnit, o2: Decimal, o2_filled: bool) 
     let f = unit.f;
     let (calc, basis, filled) = match unit.bases.o2 {
         Basis::Dry => {
-            let raw = HUNDRED * (f.fc_scf_per_mmbtu / f.f_dscf_per_mmbtu) * (O2_AMBIENT_PCT - o2) / O2_AMBIENT_PCT;
-            let mut c = Calc::new(Equation::F14a, &[f.fc_scf_per_mmbtu, f.f_dscf_per_mmbtu, o2], raw);
+            let raw = HUNDRED * (f.fc_scf_per_mmbtu / f.f_dscf_per_mmbtu) * (O2_AMBIENT_PCT - o2)
+                / O2_AMBIENT_PCT;
+            let mut c = Calc::new(
+                Equation::F14a,
+                &[f.fc_scf_per_mmbtu, f.f_dscf_per_mmbtu, o2],
+                raw,
+            );
             c.value = co2_pct_dry_f14a(o2, f);
             (c, Basis::Dry, false)
         }
@@ -1001,7 +1056,11 @@ fn derive_co2(input: &HourInput, unit: &CemsUnit, o2: Decimal, o2_filled: bool) 
             let raw = HUNDRED / O2_AMBIENT_PCT
                 * (f.fc_scf_per_mmbtu / f.f_dscf_per_mmbtu)
                 * (O2_AMBIENT_PCT * dry_fraction(h2o) - o2);
-            let mut c = Calc::new(Equation::F14b, &[f.fc_scf_per_mmbtu, f.f_dscf_per_mmbtu, h2o, o2], raw);
+            let mut c = Calc::new(
+                Equation::F14b,
+                &[f.fc_scf_per_mmbtu, f.f_dscf_per_mmbtu, h2o, o2],
+                raw,
+            );
             c.value = co2_pct_wet_f14b(o2, h2o, f);
             (c, Basis::Wet, filled)
         }
@@ -1023,7 +1082,10 @@ fn co2_filled(input: &HourInput, unit: &CemsUnit) -> (Co2, bool) {
         return (c, false);
     }
     if unit.co2_from_o2 {
-        (derive_co2(input, unit, unit.gap_bounds.o2_pct_min, true), true)
+        (
+            derive_co2(input, unit, unit.gap_bounds.o2_pct_min, true),
+            true,
+        )
     } else {
         let c = Co2 {
             value: unit.gap_bounds.co2_pct_max,
@@ -1101,7 +1163,11 @@ pub fn compute_hour(input: &HourInput, resolved: &Resolved, unit: &CemsUnit) -> 
                 Basis::Dry => {
                     let (h2o, filled) = moisture(input, unit, MoistureSide::Min);
                     out.moisture_filled |= filled;
-                    let mut r = Calc::new(Equation::F2, &[k, ppm, q, h2o], so2_lb_per_hr_f2(ppm, q, h2o).0);
+                    let mut r = Calc::new(
+                        Equation::F2,
+                        &[k, ppm, q, h2o],
+                        so2_lb_per_hr_f2(ppm, q, h2o).0,
+                    );
                     r.filled_input = filled;
                     r
                 }
@@ -1134,7 +1200,11 @@ pub fn compute_hour(input: &HourInput, resolved: &Resolved, unit: &CemsUnit) -> 
         if let (Some(q), Some((co2, dil_filled))) = (flow, co2) {
             let k = K_CO2_TONS_PER_SCF_PCT;
             let mut rate = match co2.basis {
-                Basis::Wet => Calc::new(Equation::F11, &[k, co2.value, q], co2_tons_per_hr_f11(co2.value, q).0),
+                Basis::Wet => Calc::new(
+                    Equation::F11,
+                    &[k, co2.value, q],
+                    co2_tons_per_hr_f11(co2.value, q).0,
+                ),
                 Basis::Dry => {
                     let (h2o, filled) = moisture(input, unit, MoistureSide::Min);
                     out.moisture_filled |= filled;

@@ -203,26 +203,34 @@ impl Rule {
             Rule::NoHistoryMaximumPotential => "40 CFR 75.31(b)(2) / 75.31(c)(3)",
             Rule::LoadRangeAverage => "40 CFR 75.31(c) / 75.33(c) Table 2",
             Rule::HigherLoadRangeAverage => "40 CFR 75.31(c)",
-            Rule::Percentile90OrBeforeAfter | Rule::Percentile95OrBeforeAfter | Rule::LookbackMaximum => {
-                "40 CFR 75.33(b) Table 1"
-            }
+            Rule::Percentile90OrBeforeAfter
+            | Rule::Percentile95OrBeforeAfter
+            | Rule::LookbackMaximum => "40 CFR 75.33(b) Table 1",
             Rule::LoadRangePercentile90OrBeforeAfter
             | Rule::LoadRangePercentile95OrBeforeAfter
             | Rule::LoadRangeMaximum => "40 CFR 75.33(c) Table 2",
             Rule::HigherLoadRangeMaximum => "40 CFR 75.33(c)(5)",
             Rule::MaximumPotential => "40 CFR 75.33(b)/(c) Tables 1 and 2, (c)(6)",
-            Rule::LoadUnknownMaximumPotential => "40 CFR 75.33(c) Table 2 (operational bin cannot be determined)",
+            Rule::LoadUnknownMaximumPotential => {
+                "40 CFR 75.33(c) Table 2 (operational bin cannot be determined)"
+            }
         }
     }
 
     pub fn as_str(self) -> &'static str {
         match self {
             Rule::BeforeAfterAverage => "average of the hours before and after the gap",
-            Rule::NoHistoryMaximumPotential => "no prior quality-assured data: maximum potential value",
+            Rule::NoHistoryMaximumPotential => {
+                "no prior quality-assured data: maximum potential value"
+            }
             Rule::LoadRangeAverage => "average at the load range",
             Rule::HigherLoadRangeAverage => "average at the next higher load range with data",
-            Rule::Percentile90OrBeforeAfter => "greater of the 90th percentile and the before/after average",
-            Rule::Percentile95OrBeforeAfter => "greater of the 95th percentile and the before/after average",
+            Rule::Percentile90OrBeforeAfter => {
+                "greater of the 90th percentile and the before/after average"
+            }
+            Rule::Percentile95OrBeforeAfter => {
+                "greater of the 95th percentile and the before/after average"
+            }
             Rule::LookbackMaximum => "maximum of the lookback",
             Rule::LoadRangePercentile90OrBeforeAfter => {
                 "greater of the load-range 90th percentile and the before/after average"
@@ -285,7 +293,10 @@ pub fn load_range(load_mw: Decimal, max_load_mw: Decimal) -> u8 {
         "max_load_mw checked positive at construction"
     );
     let tenths = (load_mw * Decimal::TEN / max_load_mw).ceil();
-    tenths.to_u8().unwrap_or(u8::MAX).clamp(1, LOAD_RANGES as u8)
+    tenths
+        .to_u8()
+        .unwrap_or(u8::MAX)
+        .clamp(1, LOAD_RANGES as u8)
 }
 
 /// What a gap hour knows when its rule is applied.
@@ -350,7 +361,11 @@ fn greater(a: Decimal, b: Option<Decimal>) -> Decimal {
 /// `lookback` summarises the previous 720 quality-assured hours.
 /// `None` means the rule needs the maximum potential concentration and
 /// `mpc_ppm` is absent.
-pub fn so2_choice(facts: &GapFacts, lookback: Option<&Stats>, mpc_ppm: Option<Decimal>) -> Option<Choice> {
+pub fn so2_choice(
+    facts: &GapFacts,
+    lookback: Option<&Stats>,
+    mpc_ppm: Option<Decimal>,
+) -> Option<Choice> {
     let avg = facts.before_after_average();
     let mpc = |rule| mpc_ppm.map(|m| choice(m, rule, Some(m), None, None));
     match facts.tier {
@@ -411,7 +426,13 @@ pub fn load_based_choice(
     let higher = || (idx + 1..LOAD_RANGES).find_map(|i| ranges[i].as_ref().map(|s| (i, s)));
     if facts.tier == Tier::Initial {
         return match (&ranges[idx], higher()) {
-            (Some(s), _) => Some(choice(s.mean, Rule::LoadRangeAverage, Some(s.mean), Some(s), Some(r))),
+            (Some(s), _) => Some(choice(
+                s.mean,
+                Rule::LoadRangeAverage,
+                Some(s.mean),
+                Some(s),
+                Some(r),
+            )),
             (None, Some((i, s))) => Some(choice(
                 s.mean,
                 Rule::HigherLoadRangeAverage,
@@ -441,9 +462,13 @@ pub fn load_based_choice(
     let avg = facts.before_after_average();
     let n = facts.gap_op_hours;
     Some(match facts.tier {
-        Tier::Mda95 if n <= GAP_SHORT_HOURS_MDA95 => {
-            choice(s.mean, Rule::LoadRangeAverage, Some(s.mean), Some(s), Some(r))
-        }
+        Tier::Mda95 if n <= GAP_SHORT_HOURS_MDA95 => choice(
+            s.mean,
+            Rule::LoadRangeAverage,
+            Some(s.mean),
+            Some(s),
+            Some(r),
+        ),
         Tier::Mda95 => choice(
             greater(s.p90, avg),
             Rule::LoadRangePercentile90OrBeforeAfter,
@@ -451,9 +476,13 @@ pub fn load_based_choice(
             Some(s),
             Some(r),
         ),
-        Tier::Mda90 if n <= GAP_SHORT_HOURS_MDA90 => {
-            choice(s.mean, Rule::LoadRangeAverage, Some(s.mean), Some(s), Some(r))
-        }
+        Tier::Mda90 if n <= GAP_SHORT_HOURS_MDA90 => choice(
+            s.mean,
+            Rule::LoadRangeAverage,
+            Some(s.mean),
+            Some(s),
+            Some(r),
+        ),
         Tier::Mda90 => choice(
             greater(s.p95, avg),
             Rule::LoadRangePercentile95OrBeforeAfter,
@@ -529,8 +558,13 @@ pub enum SubstituteError {
     OutOfOrder { clock_hour: i64, previous: i64 },
     #[error("max_load_mw must be positive, found {0}")]
     MaxLoad(Decimal),
-    #[error("{parameter} is missing at hour {clock_hour}: its load range needs the unit's max_load_mw")]
-    NeedsMaxLoad { parameter: Parameter, clock_hour: i64 },
+    #[error(
+        "{parameter} is missing at hour {clock_hour}: its load range needs the unit's max_load_mw"
+    )]
+    NeedsMaxLoad {
+        parameter: Parameter,
+        clock_hour: i64,
+    },
     #[error("{parameter} is missing at hour {clock_hour}: the rule needs the unit's {what}")]
     NeedsMaximumPotential {
         parameter: Parameter,
@@ -607,7 +641,11 @@ impl ParamState {
             parameter,
             enabled,
             qa_hours: 0,
-            lookback: VecDeque::with_capacity(if enabled { parameter.lookback_qa_hours() } else { 0 }),
+            lookback: VecDeque::with_capacity(if enabled {
+                parameter.lookback_qa_hours()
+            } else {
+                0
+            }),
             last_qa: None,
             gap: None,
             substituted_hours: 0,
@@ -654,7 +692,10 @@ impl MdaWindow {
         if self.hours.is_empty() {
             return None;
         }
-        Some(Decimal::ONE_HUNDRED * Decimal::from(self.qa[p.index()]) / Decimal::from(self.hours.len() as u64))
+        Some(
+            Decimal::ONE_HUNDRED * Decimal::from(self.qa[p.index()])
+                / Decimal::from(self.hours.len() as u64),
+        )
     }
 }
 
@@ -731,7 +772,10 @@ impl UnitStream {
     pub fn push(&mut self, clock_hour: i64, input: HourInput) -> Result<(), SubstituteError> {
         if let Some(previous) = self.last_clock_hour {
             if clock_hour <= previous {
-                return Err(SubstituteError::OutOfOrder { clock_hour, previous });
+                return Err(SubstituteError::OutOfOrder {
+                    clock_hour,
+                    previous,
+                });
             }
         }
         self.last_clock_hour = Some(clock_hour);
@@ -760,7 +804,10 @@ impl UnitStream {
             _ => None,
         };
         for p in [Parameter::Flow, Parameter::Nox] {
-            if self.params[p.index()].enabled && readings[p.index()].is_none() && self.config.max_load_mw.is_none() {
+            if self.params[p.index()].enabled
+                && readings[p.index()].is_none()
+                && self.config.max_load_mw.is_none()
+            {
                 return Err(SubstituteError::NeedsMaxLoad {
                     parameter: p,
                     clock_hour,
@@ -801,8 +848,8 @@ impl UnitStream {
                         before: state.last_qa,
                     });
                     gap.op_hours += 1;
-                    let initial =
-                        state.qa_hours < p.initial_qa_hours() && clock_hour - first < LOOKBACK_CLOCK_HOURS_MAX;
+                    let initial = state.qa_hours < p.initial_qa_hours()
+                        && clock_hour - first < LOOKBACK_CLOCK_HOURS_MAX;
                     let mda_pct = if initial { None } else { self.window.pct(p) };
                     slots[i] = Slot::Waiting(Waiting {
                         tier: mda_pct.map_or(Tier::Initial, Tier::for_mda),
@@ -851,7 +898,8 @@ impl UnitStream {
                     Parameter::So2 => resolved.so2_ppm = Some(s.value),
                     Parameter::Flow => resolved.flow_scfh_wet = Some(s.value),
                     Parameter::Nox => {
-                        resolved.nox_lb_per_mmbtu = Some(cems::substituted_nox(s.value, self.config.unit.rounding))
+                        resolved.nox_lb_per_mmbtu =
+                            Some(cems::substituted_nox(s.value, self.config.unit.rounding))
                     }
                 }
             }
@@ -887,11 +935,19 @@ impl UnitStream {
     }
 
     /// Apply the rule to every waiting hour of a parameter's gap.
-    fn close_gap(&mut self, p: Parameter, after: Option<Decimal>, clock_hour: i64) -> Result<(), SubstituteError> {
+    fn close_gap(
+        &mut self,
+        p: Parameter,
+        after: Option<Decimal>,
+        clock_hour: i64,
+    ) -> Result<(), SubstituteError> {
         let i = p.index();
         let gap = self.params[i].gap.take().expect("an open gap");
         let oldest = gap.first_clock_hour - LOOKBACK_CLOCK_HOURS_MAX;
-        let lookback = self.params[i].lookback.iter().filter(|v| v.clock_hour > oldest);
+        let lookback = self.params[i]
+            .lookback
+            .iter()
+            .filter(|v| v.clock_hour > oldest);
         // Statistics of the lookback as at the gap's first hour, once per gap.
         let mut so2_stats = None;
         let mut ranges: [Option<Stats>; LOAD_RANGES] = [None; LOAD_RANGES];
@@ -907,8 +963,12 @@ impl UnitStream {
             for (r, stats) in ranges.iter_mut().enumerate() {
                 let range = r as u8 + 1;
                 self.values.clear();
-                self.values
-                    .extend(self.scratch.iter().filter(|(x, _)| *x == range).map(|&(_, v)| v));
+                self.values.extend(
+                    self.scratch
+                        .iter()
+                        .filter(|(x, _)| *x == range)
+                        .map(|&(_, v)| v),
+                );
                 *stats = stats_of(&mut self.values);
             }
         }

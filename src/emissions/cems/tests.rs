@@ -76,7 +76,12 @@ fn c3_quarterly_so2_tons_from_hourly_rates_and_operating_time() {
         (dec!(1200.0), dec!(0.50)),
     ];
     let lb: Lb = hours.iter().map(|&(r, t)| so2_lb(LbPerHr(r), t)).sum();
-    check(lb.to_tons().0, dec!(1.877), 3, "C-3, App. F Eq. F-3 before rounding");
+    check(
+        lb.to_tons().0,
+        dec!(1.877),
+        3,
+        "C-3, App. F Eq. F-3 before rounding",
+    );
     check(lb.to_tons().0, dec!(1.9), 1, "C-3, App. F Eq. F-3 and §2.4");
 }
 
@@ -139,7 +144,10 @@ fn f14_negative_results_record_zero_percent() {
     // 40 CFR 75 App. F §4.1 (verified): a negative F-14a/F-14b result is recorded as 0.0 % CO2.
     let gas = f_factors(Fuel::NaturalGas);
     // F-14b at 8 % moisture reaches zero at O2w = 20.9 × 0.92 = 19.228 %.
-    assert_eq!(co2_pct_wet_f14b(dec!(19.228), dec!(8.0), gas), Decimal::ZERO);
+    assert_eq!(
+        co2_pct_wet_f14b(dec!(19.228), dec!(8.0), gas),
+        Decimal::ZERO
+    );
     assert_eq!(co2_pct_wet_f14b(dec!(19.5), dec!(8.0), gas), Decimal::ZERO);
     assert!(co2_pct_wet_f14b(dec!(19.2), dec!(8.0), gas) > Decimal::ZERO);
     assert_eq!(co2_pct_dry_f14a(dec!(21.0), gas), Decimal::ZERO);
@@ -152,7 +160,12 @@ fn f14b_wet_equals_f14a_on_the_dry_equivalent() {
     let gas = f_factors(Fuel::NaturalGas);
     let wet = co2_pct_wet_f14b(dec!(2.7), dec!(10.0), gas);
     let dry = co2_pct_dry_f14a(dec!(3.0), gas);
-    check(wet, (dry * dec!(0.9)).round_dp(12), 12, "App. F Eq. F-14a vs F-14b");
+    check(
+        wet,
+        (dry * dec!(0.9)).round_dp(12),
+        12,
+        "App. F Eq. F-14a vs F-14b",
+    );
 }
 
 #[test]
@@ -172,7 +185,10 @@ fn c10_co2_mass_rate_wet() {
 #[test]
 fn c19_blended_f_factors() {
     // Check value C-19: 40 CFR 75 App. F §3.3.6.4 (form from memory).
-    let blend = blended_f_factors(&[(dec!(0.6), bituminous()), (dec!(0.4), f_factors(Fuel::NaturalGas))]);
+    let blend = blended_f_factors(&[
+        (dec!(0.6), bituminous()),
+        (dec!(0.4), f_factors(Fuel::NaturalGas)),
+    ]);
     check(blend.f_dscf_per_mmbtu, dec!(9352), 0, "C-19 F");
     check(blend.fc_scf_per_mmbtu, dec!(1496), 0, "C-19 Fc");
 }
@@ -180,7 +196,11 @@ fn c19_blended_f_factors() {
 #[test]
 fn c20_nox_mass_hour_and_day() {
     // Check value C-20: 40 CFR 75 App. F Eq. F-24 and F-27 (forms from memory).
-    let hour = nox_lb_f24(LbPerMmbtu(dec!(0.136)), MmbtuPerHr(dec!(2088.2)), dec!(1.00));
+    let hour = nox_lb_f24(
+        LbPerMmbtu(dec!(0.136)),
+        MmbtuPerHr(dec!(2088.2)),
+        dec!(1.00),
+    );
     check(hour.0, dec!(284.0), 1, "C-20 hour, App. F Eq. F-24");
     let day: Lb = (0..24).map(|_| hour).sum();
     check(day.to_tons().0, dec!(3.41), 2, "C-20 day, App. F Eq. F-27");
@@ -264,7 +284,12 @@ fn method_19_forms_agree_with_f5_and_f6_on_dry_equivalents() {
     );
 }
 
-fn nox_hour(nox: Decimal, o2: Option<Decimal>, co2: Option<Decimal>, h2o: Option<Decimal>) -> HourInput {
+fn nox_hour(
+    nox: Decimal,
+    o2: Option<Decimal>,
+    co2: Option<Decimal>,
+    h2o: Option<Decimal>,
+) -> HourInput {
     HourInput {
         op_time_hr: dec!(1),
         nox_ppm: Some(nox),
@@ -285,20 +310,30 @@ fn boiler_o2_cap_applies_above_14_percent_only() {
     let past = nox_rate_measured(&nox_hour(dec!(50), Some(dec!(14.1)), None, None), &u).unwrap();
     assert_eq!(past.equation, Equation::M19_5D);
     assert_eq!(past.cap_replaced_pct, Some(dec!(14.1)));
-    assert_eq!(past.value, at.value, "the capped rate is the rate at 14.0 %");
+    assert_eq!(
+        past.value, at.value,
+        "the capped rate is the rate at 14.0 %"
+    );
 }
 
 #[test]
 fn turbine_caps_are_19_percent_o2_and_1_percent_co2() {
     // 40 CFR 75 App. F §3.3.4.1 (verified): stationary gas turbines 19.0 % O2 / 1.0 % CO2.
-    let u = unit(UnitKind::CombustionTurbine, Fuel::NaturalGas, Diluent::O2, DRY_O2);
+    let u = unit(
+        UnitKind::CombustionTurbine,
+        Fuel::NaturalGas,
+        Diluent::O2,
+        DRY_O2,
+    );
     let at = nox_rate_measured(&nox_hour(dec!(9), Some(dec!(19.0)), None, None), &u).unwrap();
     assert_eq!(at.cap_replaced_pct, None);
     let past = nox_rate_measured(&nox_hour(dec!(9), Some(dec!(19.05)), None, None), &u).unwrap();
     assert_eq!(past.cap_replaced_pct, Some(dec!(19.05)));
     check(
         past.value,
-        nox_lb_per_mmbtu_f5(dec!(9), dec!(19.0), dec!(8710)).0.round_dp(12),
+        nox_lb_per_mmbtu_f5(dec!(9), dec!(19.0), dec!(8710))
+            .0
+            .round_dp(12),
         12,
         "§3.3.4.1 turbine O2 cap",
     );
@@ -308,14 +343,21 @@ fn turbine_caps_are_19_percent_o2_and_1_percent_co2() {
         co2: Basis::Wet,
         ..DRY_O2
     };
-    let u = unit(UnitKind::CombustionTurbine, Fuel::NaturalGas, Diluent::Co2, co2_bases);
+    let u = unit(
+        UnitKind::CombustionTurbine,
+        Fuel::NaturalGas,
+        Diluent::Co2,
+        co2_bases,
+    );
     let at = nox_rate_measured(&nox_hour(dec!(9), None, Some(dec!(1.0)), None), &u).unwrap();
     assert_eq!((at.equation, at.cap_replaced_pct), (Equation::F6, None));
     let past = nox_rate_measured(&nox_hour(dec!(9), None, Some(dec!(0.9)), None), &u).unwrap();
     assert_eq!(past.cap_replaced_pct, Some(dec!(0.9)));
     check(
         past.value,
-        nox_lb_per_mmbtu_f6(dec!(9), dec!(1.0), dec!(1040)).0.round_dp(12),
+        nox_lb_per_mmbtu_f6(dec!(9), dec!(1.0), dec!(1040))
+            .0
+            .round_dp(12),
         12,
         "§3.3.4.1 turbine CO2 cap",
     );
@@ -356,28 +398,51 @@ fn wet_o2_cap_uses_eq_19_3d_and_dry_nox_wet_o2_uses_19_5d() {
     };
     let u = unit(UnitKind::Boiler, Fuel::Bituminous, Diluent::O2, wet);
     // At 10 % moisture the cap is 12.6 % wet.
-    let at = nox_rate_measured(&nox_hour(dec!(90), Some(dec!(12.6)), None, Some(dec!(10))), &u).unwrap();
+    let at = nox_rate_measured(
+        &nox_hour(dec!(90), Some(dec!(12.6)), None, Some(dec!(10))),
+        &u,
+    )
+    .unwrap();
     assert_eq!(at.equation, Equation::M19_3);
-    let past = nox_rate_measured(&nox_hour(dec!(90), Some(dec!(12.7)), None, Some(dec!(10))), &u).unwrap();
+    let past = nox_rate_measured(
+        &nox_hour(dec!(90), Some(dec!(12.7)), None, Some(dec!(10))),
+        &u,
+    )
+    .unwrap();
     assert_eq!(past.equation, Equation::M19_3D);
     check(
         past.value,
-        nox_lb_per_mmbtu_f5(dec!(100), dec!(14.0), dec!(9780)).0.round_dp(12),
+        nox_lb_per_mmbtu_f5(dec!(100), dec!(14.0), dec!(9780))
+            .0
+            .round_dp(12),
         12,
         "Eq. 19-3D at the cap",
     );
 
-    let dry_nox = Bases { nox: Basis::Dry, ..wet };
+    let dry_nox = Bases {
+        nox: Basis::Dry,
+        ..wet
+    };
     let u = unit(UnitKind::Boiler, Fuel::Bituminous, Diluent::O2, dry_nox);
-    let past = nox_rate_measured(&nox_hour(dec!(100), Some(dec!(12.7)), None, Some(dec!(10))), &u).unwrap();
+    let past = nox_rate_measured(
+        &nox_hour(dec!(100), Some(dec!(12.7)), None, Some(dec!(10))),
+        &u,
+    )
+    .unwrap();
     assert_eq!(past.equation, Equation::M19_5D);
     check(
         past.value,
-        nox_lb_per_mmbtu_f5(dec!(100), dec!(14.0), dec!(9780)).0.round_dp(12),
+        nox_lb_per_mmbtu_f5(dec!(100), dec!(14.0), dec!(9780))
+            .0
+            .round_dp(12),
         12,
         "Eq. 19-5D",
     );
-    let at = nox_rate_measured(&nox_hour(dec!(100), Some(dec!(12.6)), None, Some(dec!(10))), &u).unwrap();
+    let at = nox_rate_measured(
+        &nox_hour(dec!(100), Some(dec!(12.6)), None, Some(dec!(10))),
+        &u,
+    )
+    .unwrap();
     assert_eq!(at.equation, Equation::M19_5);
 }
 
@@ -476,13 +541,19 @@ fn one_boiler_hour_exact_and_part75() {
     let r = compute_hour(&hour, &resolve_readings(&hour, &u), &u);
     let so2_rate = r.so2_lb_per_hr.unwrap();
     assert_eq!(so2_rate.equation, Equation::F1);
-    check(so2_rate.value, dec!(2490), 10, "App. F Eq. F-1: 1.660e-7 × 500 × 3e7");
+    check(
+        so2_rate.value,
+        dec!(2490),
+        10,
+        "App. F Eq. F-1: 1.660e-7 × 500 × 3e7",
+    );
     assert_eq!(r.so2(), Some(Lb(dec!(1245))));
     let nox_rate = r.nox_lb_per_mmbtu.unwrap();
     check(nox_rate.value, dec!(0.136344), 6, "C-4");
     let hi = r.heat_input_mmbtu_per_hr.unwrap();
     assert_eq!(hi.equation, Equation::F18);
-    let expected_hi = heat_input_mmbtu_per_hr_f18(dec!(30000000), dec!(3.0), dec!(8.0), dec!(9780)).0;
+    let expected_hi =
+        heat_input_mmbtu_per_hr_f18(dec!(30000000), dec!(3.0), dec!(8.0), dec!(9780)).0;
     assert_eq!(hi.value, expected_hi);
     assert_eq!(r.heat_input(), Some(Mmbtu(expected_hi * dec!(0.5))));
     assert_eq!(r.nox(), Some(Lb(nox_rate.value * expected_hi * dec!(0.5))));
@@ -551,7 +622,9 @@ fn missing_moisture_and_diluent_take_the_conservative_bounds() {
     // Each bound raises the result above the value at the reading it replaced.
     let measured = compute_hour(&boiler_hour(), &resolve_readings(&boiler_hour(), &u), &u);
     assert!(r.so2_lb_per_hr.unwrap().value > measured.so2_lb_per_hr.unwrap().value);
-    assert!(r.heat_input_mmbtu_per_hr.unwrap().value > measured.heat_input_mmbtu_per_hr.unwrap().value);
+    assert!(
+        r.heat_input_mmbtu_per_hr.unwrap().value > measured.heat_input_mmbtu_per_hr.unwrap().value
+    );
 }
 
 #[test]
@@ -561,7 +634,12 @@ fn co2_from_o2_feeds_heat_input_and_co2_mass_once() {
         o2: Basis::Dry,
         ..DRY_O2
     };
-    let mut u = unit(UnitKind::CombustionTurbine, Fuel::NaturalGas, Diluent::Co2, bases);
+    let mut u = unit(
+        UnitKind::CombustionTurbine,
+        Fuel::NaturalGas,
+        Diluent::Co2,
+        bases,
+    );
     u.co2_from_o2 = true;
     u.computes.so2 = false;
     let hour = HourInput {
@@ -610,7 +688,12 @@ fn formula_prints_the_equation_and_the_numbers() {
             n.computed.normalize()
         )
     );
-    for eq in [Equation::M19_3D, Equation::F17, Equation::F24, Equation::Substituted] {
+    for eq in [
+        Equation::M19_3D,
+        Equation::F17,
+        Equation::F24,
+        Equation::Substituted,
+    ] {
         assert!(eq.arity() <= ARGS_MAX && eq.arity() > 0);
     }
 }

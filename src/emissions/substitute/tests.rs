@@ -94,8 +94,16 @@ fn stats(lookback: &[Decimal]) -> Stats {
 fn c14_percentiles_by_nearest_rank() {
     // Check value C-14: §72.2 percentile, nearest rank ⌈0.9·20⌉ = 18th smallest of 101..=120 is 118.
     let values: Vec<Decimal> = (101..=120).map(Decimal::from).collect();
-    assert_eq!(percentile_nearest_rank(&values, 90), dec!(118), "C-14, §72.2");
-    assert_eq!(percentile_nearest_rank(&values, 95), dec!(119), "⌈0.95·20⌉ = 19th");
+    assert_eq!(
+        percentile_nearest_rank(&values, 90),
+        dec!(118),
+        "C-14, §72.2"
+    );
+    assert_eq!(
+        percentile_nearest_rank(&values, 95),
+        dec!(119),
+        "⌈0.95·20⌉ = 19th"
+    );
     let s = stats(&values);
     assert_eq!((s.count, s.mean, s.max), (20, dec!(110.5), dec!(120)));
     assert_eq!(percentile_nearest_rank(&[dec!(7)], 90), dec!(7));
@@ -146,8 +154,18 @@ fn c15_so2_substitution_tiers() {
         Rule::BeforeAfterAverage,
         "C-15 %MDA 92, 6 h",
     );
-    check(go(dec!(85), 6), dec!(310), Rule::LookbackMaximum, "C-15 %MDA 85");
-    check(go(dec!(75), 6), dec!(1566), Rule::MaximumPotential, "C-15 %MDA 75");
+    check(
+        go(dec!(85), 6),
+        dec!(310),
+        Rule::LookbackMaximum,
+        "C-15 %MDA 85",
+    );
+    check(
+        go(dec!(75), 6),
+        dec!(1566),
+        Rule::MaximumPotential,
+        "C-15 %MDA 75",
+    );
     // "Greater of": a before/after average above the percentile wins (§75.33(b) Table 1).
     let high = GapFacts {
         before: Some(dec!(300)),
@@ -179,7 +197,12 @@ fn so2_gap_length_boundaries() {
         Rule::Percentile90OrBeforeAfter,
         "§75.33(b) 25 h",
     );
-    check(go(Tier::Mda90, 8), dec!(220), Rule::BeforeAfterAverage, "§75.33(b) 8 h");
+    check(
+        go(Tier::Mda90, 8),
+        dec!(220),
+        Rule::BeforeAfterAverage,
+        "§75.33(b) 8 h",
+    );
     check(
         go(Tier::Mda90, 9),
         dec!(280),
@@ -222,7 +245,11 @@ fn so2_initial_period_rules() {
         Rule::NoHistoryMaximumPotential,
         "§75.31(b)(2)",
     );
-    assert_eq!(so2_choice(&none, None, None), None, "MPC required and absent");
+    assert_eq!(
+        so2_choice(&none, None, None),
+        None,
+        "MPC required and absent"
+    );
 }
 
 #[test]
@@ -310,7 +337,12 @@ fn load_based_tiers_and_gap_boundaries() {
         (c5.value, c5.rule, c5.range_used),
         (dec!(2200), Rule::HigherLoadRangeMaximum, Some(8))
     );
-    check(go(Tier::Mda95, 2, Some(9)), MPF, Rule::MaximumPotential, "§75.33(c)(6)");
+    check(
+        go(Tier::Mda95, 2, Some(9)),
+        MPF,
+        Rule::MaximumPotential,
+        "§75.33(c)(6)",
+    );
     check(
         go(Tier::Mda95, 2, None),
         MPF,
@@ -340,7 +372,9 @@ fn load_based_tiers_and_gap_boundaries() {
 
 /// 720 quality-assured values cycling through 100..=149 ppm.
 fn history_720() -> Vec<Option<Decimal>> {
-    (0..720).map(|i| Some(Decimal::from(100 + i % 50))).collect()
+    (0..720)
+        .map(|i| Some(Decimal::from(100 + i % 50)))
+        .collect()
 }
 
 #[test]
@@ -360,7 +394,11 @@ fn stream_so2_gap_of_24_vs_25_hours() {
         let subs = substitutions(&out, Parameter::So2);
         assert_eq!(subs.len(), gap);
         for s in &subs {
-            assert_eq!((s.value, s.rule, s.tier), (value, rule, Tier::Mda95), "gap {gap}");
+            assert_eq!(
+                (s.value, s.rule, s.tier),
+                (value, rule, Tier::Mda95),
+                "gap {gap}"
+            );
             assert_eq!(
                 (s.before, s.after, s.gap_op_hours),
                 (Some(dec!(119)), Some(dec!(120)), gap as u32)
@@ -436,7 +474,11 @@ fn stream_availability_is_recomputed_for_each_hour_of_a_gap() {
             38..=80 => (Tier::Mda90, Rule::Percentile95OrBeforeAfter, s.p95),
             _ => (Tier::Mda80, Rule::LookbackMaximum, s.max),
         };
-        assert_eq!((sub.tier, sub.rule, sub.value), (tier, rule, value), "gap hour {k}");
+        assert_eq!(
+            (sub.tier, sub.rule, sub.value),
+            (tier, rule, value),
+            "gap hour {k}"
+        );
     }
 }
 
@@ -477,10 +519,16 @@ fn zero_operating_time_neither_breaks_nor_lengthens_a_gap() {
     s.push(3, so2_hour(None)).unwrap();
     let first = s.next_ready().expect("the QA hour is ready");
     assert_eq!(first.fill(Parameter::So2), Fill::Measured);
-    assert!(s.next_ready().is_none(), "gap hours wait for the gap to close");
+    assert!(
+        s.next_ready().is_none(),
+        "gap hours wait for the gap to close"
+    );
     s.push(4, so2_hour(Some(dec!(200)))).unwrap();
     let out: Vec<HourOut> = std::iter::from_fn(|| s.next_ready()).collect();
-    assert_eq!(out.iter().map(|h| h.clock_hour).collect::<Vec<_>>(), [1, 2, 3, 4]);
+    assert_eq!(
+        out.iter().map(|h| h.clock_hour).collect::<Vec<_>>(),
+        [1, 2, 3, 4]
+    );
     assert_eq!(out[0].fill(Parameter::Flow), Fill::Measured);
     assert_eq!(
         out[0].fill(Parameter::So2),
@@ -545,7 +593,10 @@ fn stream_flow_initial_period_by_load_range() {
     ];
     let out = run(flow_config(), &hours).unwrap();
     let subs = substitutions(&out, Parameter::Flow);
-    let got: Vec<(Decimal, Rule, Option<u8>)> = subs.iter().map(|s| (s.value, s.rule, s.range_used)).collect();
+    let got: Vec<(Decimal, Rule, Option<u8>)> = subs
+        .iter()
+        .map(|s| (s.value, s.rule, s.range_used))
+        .collect();
     assert_eq!(
         got,
         [
@@ -555,19 +606,28 @@ fn stream_flow_initial_period_by_load_range() {
             (MPF, Rule::LoadUnknownMaximumPotential, None),
         ]
     );
-    assert!(subs.iter().all(|s| s.tier == Tier::Initial && s.gap_op_hours == 4));
+    assert!(subs
+        .iter()
+        .all(|s| s.tier == Tier::Initial && s.gap_op_hours == 4));
     // The substituted flow went into heat input (F-18) and NOx mass (F-24).
     let h = out[3].result;
     let hi = cems::heat_input_mmbtu_per_hr_f18(dec!(11000000), dec!(3.0), dec!(8.0), dec!(9780)).0;
     assert_eq!(h.heat_input_mmbtu_per_hr.unwrap().value, hi);
-    assert_eq!(h.nox_lb.unwrap().value, h.nox_lb_per_mmbtu.unwrap().value * hi);
+    assert_eq!(
+        h.nox_lb.unwrap().value,
+        h.nox_lb_per_mmbtu.unwrap().value * hi
+    );
 }
 
 #[test]
 fn stream_late_flow_gap_uses_the_load_range_of_the_last_2160_qa_hours() {
     // 40 CFR 75.33(c) Table 2 after 2,160 QA hours: short gap at ≥ 95.0 % → load-range average
     // over the previous 2,160 QA hours; an older value at the range drops out.
-    let mut hours = vec![flow_hour(Some(dec!(300)), Some(dec!(90000000)), Some(dec!(100)))];
+    let mut hours = vec![flow_hour(
+        Some(dec!(300)),
+        Some(dec!(90000000)),
+        Some(dec!(100)),
+    )];
     for i in 0..2160 {
         let (load, flow) = if i % 2 == 0 {
             (dec!(300), Decimal::from(10_000_000 + (i % 10) * 100_000))
@@ -577,7 +637,11 @@ fn stream_late_flow_gap_uses_the_load_range_of_the_last_2160_qa_hours() {
         hours.push(flow_hour(Some(load), Some(flow), Some(dec!(100))));
     }
     hours.push(flow_hour(Some(dec!(310)), None, Some(dec!(100))));
-    hours.push(flow_hour(Some(dec!(300)), Some(dec!(10000000)), Some(dec!(100))));
+    hours.push(flow_hour(
+        Some(dec!(300)),
+        Some(dec!(10000000)),
+        Some(dec!(100)),
+    ));
     let out = run(flow_config(), &hours).unwrap();
     let s = substitutions(&out, Parameter::Flow)[0];
     let at_range: Vec<Decimal> = (0..2160)
@@ -609,13 +673,19 @@ fn stream_late_flow_gap_uses_the_load_range_of_the_last_2160_qa_hours() {
 fn stream_nox_rate_gap_is_substituted_and_used_in_f24() {
     // 40 CFR 75.31(c) for the NOx-diluent rate: a missing O2 makes the rate missing.
     let good = flow_hour(Some(dec!(300)), Some(dec!(20000000)), Some(dec!(100)));
-    let no_o2 = HourInput { o2_pct: None, ..good };
+    let no_o2 = HourInput {
+        o2_pct: None,
+        ..good
+    };
     let out = run(flow_config(), &[good, no_o2, good]).unwrap();
     let s = substitutions(&out, Parameter::Nox)[0];
     let measured = out[0].result.nox_lb_per_mmbtu.unwrap().value;
     assert_eq!((s.rule, s.value), (Rule::LoadRangeAverage, measured));
     let h = out[1].result;
-    assert_eq!(h.nox_lb_per_mmbtu.unwrap().equation, cems::Equation::Substituted);
+    assert_eq!(
+        h.nox_lb_per_mmbtu.unwrap().equation,
+        cems::Equation::Substituted
+    );
     assert!(h.diluent_filled, "heat input took the minimum O2 bound");
     assert_eq!(
         h.nox_lb.unwrap().value,
@@ -636,7 +706,11 @@ fn refusals_name_what_is_missing() {
         }
     );
     // Without a gap, max_load_mw is not needed.
-    assert!(run(c, &[flow_hour(Some(dec!(300)), Some(dec!(1)), Some(dec!(100)))]).is_ok());
+    assert!(run(
+        c,
+        &[flow_hour(Some(dec!(300)), Some(dec!(1)), Some(dec!(100)))]
+    )
+    .is_ok());
 
     let mut c = so2_only();
     c.maximum_potentials.so2_ppm = None;
@@ -660,7 +734,10 @@ fn refusals_name_what_is_missing() {
     );
     let mut c = so2_only();
     c.max_load_mw = Some(Decimal::ZERO);
-    assert!(matches!(UnitStream::new(c), Err(SubstituteError::MaxLoad(_))));
+    assert!(matches!(
+        UnitStream::new(c),
+        Err(SubstituteError::MaxLoad(_))
+    ));
 }
 
 proptest::proptest! {
