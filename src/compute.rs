@@ -2,10 +2,12 @@
 //! and its sample's analysis. Pure: it reads nothing but its arguments.
 
 use crate::emissions::engine::{fuel_record_amounts, FuelRecord};
+use crate::emissions::method::Quantity;
 use crate::emissions::periods::{Amounts, Year};
 use crate::records::{FuelUse, Sample, Stored};
 use crate::site::{Site, Unit};
 use chrono::Datelike;
+use rust_decimal::Decimal;
 use std::collections::HashMap;
 
 /// The amounts of one fuel record, or why they cannot be computed.
@@ -34,6 +36,21 @@ pub struct UnitYear<'a> {
     pub record_ids: Vec<i64>,
 }
 
+/// A year in which every quantity the unit tracks is zero in every month,
+/// so that a period without fuel records reports 0, not "not tracked";
+/// untracked quantities stay absent.
+fn tracked_zeros(unit: &Unit) -> Year {
+    let mut zeros = Amounts::default();
+    for quantity in Quantity::ALL.into_iter().filter(|&q| unit.tracks(q)) {
+        zeros.set(quantity, Decimal::ZERO);
+    }
+    let mut year = Year::default();
+    for month in 1..=12 {
+        year.add_month(month, zeros);
+    }
+    year
+}
+
 /// Every unit of the site for calendar year `year`, in site-file order.
 /// Errors name each record that could not be computed, by file and line.
 pub fn facility_year<'a>(
@@ -51,7 +68,7 @@ pub fn facility_year<'a>(
         .iter()
         .map(|unit| UnitYear {
             unit,
-            year: Year::default(),
+            year: tracked_zeros(unit),
             record_ids: Vec::new(),
         })
         .collect();

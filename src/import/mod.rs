@@ -65,7 +65,9 @@ pub const FILE_BYTES_MAX: u64 = 256 * 1024 * 1024;
 pub enum ImportError {
     #[error("{0}")]
     Read(String),
-    #[error("{0}")]
+    // Transparent, not "{0}" with a source: `main` prints the whole error
+    // chain, and a source would print every row error a second time.
+    #[error(transparent)]
     Rows(#[from] FileErrors),
     #[error(transparent)]
     Ledger(#[from] crate::ledger::LedgerError),
