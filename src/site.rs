@@ -114,8 +114,27 @@ pub struct Unit {
     pub kind: UnitKind,
     pub fuel: Fuel,
     pub max_load_mw: Option<Decimal>,
+    /// Maximum potential values and gap bounds for missing monitor data.
+    pub limits: CemsLimits,
     pub methods: Vec<MethodEntry>,
     pub line: usize,
+}
+
+/// A CEMS unit's values for missing-data substitution, from its site file.
+/// Each is needed only where a rule uses it, and the refusal says so.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct CemsLimits {
+    /// Maximum potential SO2 concentration, ppm (40 CFR 75 App. A §2.1.1.1).
+    pub max_so2_ppm: Option<Decimal>,
+    /// Maximum potential flow, scfh wet (40 CFR 75 App. A §2.1.4.1).
+    pub max_flow_scfh: Option<Decimal>,
+    /// Maximum NOx emission rate, lb/MMBtu (40 CFR 75 App. A §2.1.2.1).
+    pub max_nox_lb_per_mmbtu: Option<Decimal>,
+    /// Bounds used for a missing moisture or diluent hour (see DEVELOPERS.md).
+    pub min_h2o_pct: Option<Decimal>,
+    pub max_h2o_pct: Option<Decimal>,
+    pub min_o2_pct: Option<Decimal>,
+    pub max_co2_pct: Option<Decimal>,
 }
 
 /// One `[[units.methods]]` table: a method for a quantity, optionally for
@@ -177,6 +196,24 @@ impl Site {
 }
 
 impl Unit {
+    /// Whether the unit measures heat input with monitors.
+    pub fn heat_input_by_cems(&self) -> bool {
+        self.methods
+            .iter()
+            .any(|m| m.quantity == Quantity::HeatInput && matches!(m.method, Method::Cems { .. }))
+    }
+
+    /// Whether a method's quantity comes from hourly data rather than fuel
+    /// records: CEMS itself, or a default rate applied to CEMS heat input
+    /// (40 CFR 75 App. F Eq. F-23).
+    pub fn from_hourly(&self, method: &Method) -> bool {
+        match method {
+            Method::Cems { .. } => true,
+            Method::DefaultRate { .. } => self.heat_input_by_cems(),
+            _ => false,
+        }
+    }
+
     /// Whether the unit has any method for the quantity.
     pub fn tracks(&self, quantity: Quantity) -> bool {
         self.methods.iter().any(|m| m.quantity == quantity)
@@ -239,6 +276,13 @@ struct RawUnit {
     kind: Field,
     fuel: Field,
     max_load_mw: Field,
+    max_so2_ppm: Field,
+    max_flow_scfh: Field,
+    max_nox_lb_per_mmbtu: Field,
+    min_h2o_pct: Field,
+    max_h2o_pct: Field,
+    min_o2_pct: Field,
+    max_co2_pct: Field,
     #[serde(default)]
     methods: Vec<Spanned<RawMethod>>,
 }
@@ -579,6 +623,27 @@ fn build_unit(u: &Spanned<RawUnit>, lines: &Lines, errors: &mut Vec<SiteError>) 
         .required("fuel", &raw.fuel)
         .and(r.word::<Fuel>("fuel", &raw.fuel, "a fuel"));
     let max_load_mw = r.decimal("max_load_mw", &raw.max_load_mw, true);
+    let mut optional = |key: &str, v: &Field, positive: bool| -> Option<Option<Decimal>> {
+        match v {
+            None => Some(None),
+            some => r.decimal(key, some, positive).map(Some),
+        }
+    };
+    let limits = (|| {
+        Some(CemsLimits {
+            max_so2_ppm: optional("max_so2_ppm", &raw.max_so2_ppm, true)?,
+            max_flow_scfh: optional("max_flow_scfh", &raw.max_flow_scfh, true)?,
+            max_nox_lb_per_mmbtu: optional(
+                "max_nox_lb_per_mmbtu",
+                &raw.max_nox_lb_per_mmbtu,
+                true,
+            )?,
+            min_h2o_pct: optional("min_h2o_pct", &raw.min_h2o_pct, false)?,
+            max_h2o_pct: optional("max_h2o_pct", &raw.max_h2o_pct, false)?,
+            min_o2_pct: optional("min_o2_pct", &raw.min_o2_pct, false)?,
+            max_co2_pct: optional("max_co2_pct", &raw.max_co2_pct, true)?,
+        })
+    })();
     let table = r.table.clone();
     let methods: Vec<Option<MethodEntry>> = raw
         .methods
@@ -596,6 +661,7 @@ fn build_unit(u: &Spanned<RawUnit>, lines: &Lines, errors: &mut Vec<SiteError>) 
         } else {
             None
         },
+        limits: limits?,
         methods,
         line: table_line,
     })

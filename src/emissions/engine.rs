@@ -60,6 +60,9 @@ pub fn fuel_record_amounts(unit: &Unit, record: &FuelRecord) -> Result<Amounts, 
                 start: record.start,
                 end: record.end,
             })?;
+        if unit.from_hourly(&entry.method) {
+            continue;
+        }
         let value = apply(&entry.method, record).map_err(|source| EngineError::Calc {
             quantity,
             method: entry.method.name(),
@@ -75,7 +78,7 @@ fn apply(method: &Method, r: &FuelRecord) -> Result<rust_decimal::Decimal, CalcE
     let heat_input = || fuel_based::heat_input_mmbtu(r.burn, r.analysis);
     let value = match method {
         Method::Fuel => heat_input()?.0,
-        Method::Cems { .. } => return Err(CalcError::CemsOnFuelRecord),
+        Method::Cems { .. } => unreachable!("hourly quantities are skipped above"),
         Method::FuelSulfur => fuel_based::so2_fuel_sulfur_lb(r.burn, r.analysis)?.0,
         Method::EmissionFactor {
             factor_lb,

@@ -1161,7 +1161,8 @@ fn engine_names_the_method_and_its_line_when_a_calculation_is_refused() {
         }),
         "App. D Eq. D-2 needs %S",
     );
-    // A CEMS method cannot be applied to a fuel record.
+    // A quantity measured by CEMS comes from hourly data: fuel records leave it
+    // out rather than compute it twice (engine.rs, `Unit::from_hourly`).
     let ct1 = site.unit("CT1").unwrap();
     let png = gas(dec!(0.5), dec!(1020));
     let r = record(
@@ -1171,15 +1172,9 @@ fn engine_names_the_method_and_its_line_when_a_calculation_is_refused() {
         amount(dec!(1), FuelUom::Mmscf),
         &png,
     );
-    let entry = &ct1.methods[0];
     check(
         fuel_record_amounts(ct1, &r).map(|a| a.heat_input()),
-        Want::Refused(EngineError::Calc {
-            quantity: Quantity::HeatInput,
-            method: "cems",
-            method_line: entry.line,
-            source: CalcError::CemsOnFuelRecord,
-        }),
+        Want::Absent,
         "engine.rs: cems reads hourly data",
     );
 }

@@ -37,6 +37,4 @@ pub enum CalcError {
         needs: &'static str,
         uom: FuelUom,
     },
-    #[error("method cems applies to hourly monitor data, not to fuel records")]
-    CemsOnFuelRecord,
 }

@@ -90,7 +90,7 @@ impl Parameter {
         }
     }
 
-    fn index(self) -> usize {
+    pub fn index(self) -> usize {
         self as usize
     }
 

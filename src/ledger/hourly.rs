@@ -107,6 +107,29 @@ pub struct HourSource {
 }
 
 impl Ledger {
+    /// Which reading columns a unit's stored hours use; `None` without hours.
+    pub fn hourly_present(&self, unit: &str) -> Result<Option<[bool; Reading::COUNT]>> {
+        let cols: Vec<String> = READING_COLUMNS
+            .split(", ")
+            .map(|c| format!("max({} IS NOT NULL)", c.trim()))
+            .collect();
+        let sql = format!(
+            "SELECT count(*), {} FROM hourly WHERE unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1)",
+            cols.join(", ")
+        );
+        Ok(self.conn.query_row(&sql, [unit], |r| {
+            let n: i64 = r.get(0)?;
+            if n == 0 {
+                return Ok(None);
+            }
+            let mut present = [false; Reading::COUNT];
+            for (i, p) in present.iter_mut().enumerate() {
+                *p = r.get::<_, Option<bool>>(1 + i)?.unwrap_or(false);
+            }
+            Ok(Some(present))
+        })?)
+    }
+
     /// Stream a unit's hours in force over `[from, to)`, in hour order.
     pub fn each_hour(
         &self,

@@ -46,6 +46,9 @@ pub struct UnitReport {
     pub co2_tons: Option<Decimal>,
     pub nox_rate_lb_per_mmbtu: Option<Decimal>,
     pub substituted_hours: SubstitutedHours,
+    /// Percent monitor data availability (40 CFR 75.32) at the end of the
+    /// data, per parameter; `null` for fuel-based units.
+    pub monitor_data_availability_pct: Option<Availability>,
     pub fuel_records: usize,
     pub quarters: Vec<Period>,
     pub ozone_season: Period,
@@ -57,6 +60,13 @@ pub struct SubstitutedHours {
     pub so2: u32,
     pub flow: u32,
     pub nox: u32,
+}
+
+#[derive(Debug, Clone, Copy, Serialize, PartialEq, Eq, Default)]
+pub struct Availability {
+    pub so2: Option<Decimal>,
+    pub flow: Option<Decimal>,
+    pub nox: Option<Decimal>,
 }
 
 /// The figures of one period: a quarter, a month or the ozone season.
@@ -127,13 +137,26 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
                         s
                     })
                     .collect(),
-                operating_hours: None,
+                operating_hours: u.hourly.as_ref().map(|h| h.operating_hours.normalize()),
                 heat_input_mmbtu: a.heat_input().map(|h| h.0.normalize()),
                 so2_tons: tons(a.so2()),
                 nox_tons: tons(a.nox()),
                 co2_tons: tons(a.co2()),
                 nox_rate_lb_per_mmbtu: nox_rate(a),
-                substituted_hours: SubstitutedHours::default(),
+                substituted_hours: u
+                    .hourly
+                    .as_ref()
+                    .map(|h| SubstitutedHours {
+                        so2: h.substituted_hours[0],
+                        flow: h.substituted_hours[1],
+                        nox: h.substituted_hours[2],
+                    })
+                    .unwrap_or_default(),
+                monitor_data_availability_pct: u.hourly.as_ref().map(|h| Availability {
+                    so2: h.availability_pct[0].map(|d| d.round_dp(3).normalize()),
+                    flow: h.availability_pct[1].map(|d| d.round_dp(3).normalize()),
+                    nox: h.availability_pct[2].map(|d| d.round_dp(3).normalize()),
+                }),
                 fuel_records: u.record_ids.len(),
                 quarters: (1..=4)
                     .map(|q| period(u.year.quarter(q), Some(q), None))

@@ -1,6 +1,8 @@
 //! Joins stored rows to the engine: each fuel record with its unit's methods
 //! and its sample's analysis. Pure: it reads nothing but its arguments.
 
+pub mod hourly;
+
 use crate::emissions::engine::{fuel_record_amounts, FuelRecord};
 use crate::emissions::method::Quantity;
 use crate::emissions::periods::{Amounts, Year};
@@ -34,6 +36,16 @@ pub struct UnitYear<'a> {
     pub unit: &'a Unit,
     pub year: Year,
     pub record_ids: Vec<i64>,
+    /// What the unit's hourly monitor data gave, for a CEMS unit.
+    pub hourly: Option<hourly::HourlyResult>,
+}
+
+impl UnitYear<'_> {
+    /// Add the year of a unit's hourly data to its fuel-record amounts.
+    pub fn add_hourly(&mut self, result: hourly::HourlyResult) {
+        self.year = self.year + result.year;
+        self.hourly = Some(result);
+    }
 }
 
 /// A year in which every quantity the unit tracks is zero in every month,
@@ -70,6 +82,7 @@ pub fn facility_year<'a>(
             unit,
             year: tracked_zeros(unit),
             record_ids: Vec::new(),
+            hourly: None,
         })
         .collect();
     let mut errors = Vec::new();

@@ -1,0 +1,307 @@
+//! A CEMS unit's year from its hourly rows: the 40 CFR 75 App. F equations
+//! and the 75.31/75.33 substitution stream, summed by month. Pure: the
+//! caller streams the rows in from the ledger.
+//!
+//! The stream starts at the unit's first stored hour, not at January 1, so
+//! that lookbacks and availability see the history before the year; only
+//! hours inside the year are summed.
+
+use crate::emissions::cems::{Bases, Basis, CemsUnit, Computes, GapBounds, HourInput};
+use crate::emissions::constants::f_factors;
+use crate::emissions::method::{Diluent, Method, Quantity};
+use crate::emissions::periods::{Amounts, Year};
+use crate::emissions::substitute::{
+    Fill, HourOut, MaximumPotentials, Parameter, StreamConfig, SubstituteError, UnitStream,
+};
+use crate::records::{hour_index, hour_label, HourRow, Reading};
+use crate::site::{Rounding, Unit};
+use crate::units::LB_PER_TON;
+use chrono::NaiveDate;
+use rust_decimal::Decimal;
+use rust_decimal_macros::dec;
+
+/// Gap bounds used where the site file gives none. Our convention, chosen
+/// so that a missing moisture or diluent hour does not lower emissions: no
+/// moisture below 0 %, none above 20 %; O2 never below 0 %; CO2 never above
+/// 20 %. A plant sets its own values per unit in the site file.
+pub const DEFAULT_GAP_BOUNDS: GapBounds = GapBounds {
+    h2o_pct_min: dec!(0),
+    h2o_pct_max: dec!(20),
+    o2_pct_min: dec!(0),
+    co2_pct_max: dec!(20),
+};
+
+/// Where an hourly quantity's value comes from on a given day.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum Source {
+    /// Not from hourly data (fuel records, or not tracked).
+    None,
+    /// The monitor stream.
+    Stream,
+    /// A default rate × the hour's CEMS heat input (40 CFR 75 App. F Eq. F-23).
+    DefaultRate(Decimal),
+}
+
+/// Which reading columns a unit's stored hours use (any non-empty value).
+pub type Present = [bool; Reading::COUNT];
+
+/// The stream configuration of a unit, from its site entry and the columns
+/// its data uses. One moisture basis per concentration per unit.
+pub fn stream_config(
+    unit: &Unit,
+    rounding: Rounding,
+    present: &Present,
+) -> Result<StreamConfig, String> {
+    let basis = |wet: Reading, dry: Reading, what: &str| -> Result<Basis, String> {
+        match (present[wet.index()], present[dry.index()]) {
+            (true, true) => Err(format!(
+                "unit {}: {what} is stored on both a wet and a dry basis; flue needs one basis per unit",
+                unit.id
+            )),
+            (false, true) => Ok(Basis::Dry),
+            _ => Ok(Basis::Wet),
+        }
+    };
+    let bases = Bases {
+        so2: basis(Reading::So2PpmWet, Reading::So2PpmDry, "SO2")?,
+        nox: basis(Reading::NoxPpmWet, Reading::NoxPpmDry, "NOx")?,
+        o2: basis(Reading::O2PctWet, Reading::O2PctDry, "O2")?,
+        co2: basis(Reading::Co2PctWet, Reading::Co2PctDry, "CO2")?,
+    };
+    let cems = |q: Quantity| {
+        unit.methods.iter().find_map(|m| match m.method {
+            Method::Cems { diluent } if m.quantity == q => Some(diluent),
+            _ => None,
+        })
+    };
+    let computes = Computes {
+        heat_input: cems(Quantity::HeatInput).is_some(),
+        so2: cems(Quantity::So2).is_some(),
+        nox: cems(Quantity::Nox).is_some(),
+        co2: cems(Quantity::Co2).is_some(),
+    };
+    let l = &unit.limits;
+    let has_co2 = present[Reading::Co2PctWet.index()] || present[Reading::Co2PctDry.index()];
+    Ok(StreamConfig {
+        unit: CemsUnit {
+            kind: unit.kind,
+            f: f_factors(unit.fuel),
+            heat_input_diluent: cems(Quantity::HeatInput).unwrap_or(Diluent::O2),
+            nox_diluent: cems(Quantity::Nox).unwrap_or(Diluent::O2),
+            bases,
+            co2_from_o2: computes.co2 && !has_co2,
+            rounding,
+            computes,
+            gap_bounds: GapBounds {
+                h2o_pct_min: l.min_h2o_pct.unwrap_or(DEFAULT_GAP_BOUNDS.h2o_pct_min),
+                h2o_pct_max: l.max_h2o_pct.unwrap_or(DEFAULT_GAP_BOUNDS.h2o_pct_max),
+                o2_pct_min: l.min_o2_pct.unwrap_or(DEFAULT_GAP_BOUNDS.o2_pct_min),
+                co2_pct_max: l.max_co2_pct.unwrap_or(DEFAULT_GAP_BOUNDS.co2_pct_max),
+            },
+        },
+        max_load_mw: unit.max_load_mw,
+        maximum_potentials: MaximumPotentials {
+            so2_ppm: l.max_so2_ppm,
+            flow_scfh: l.max_flow_scfh,
+            nox_lb_per_mmbtu: l.max_nox_lb_per_mmbtu,
+        },
+    })
+}
+
+/// The readings of a stored hour, on the bases of the unit's columns.
+pub fn hour_input(row: &HourRow) -> HourInput {
+    let either = |a: Reading, b: Reading| row.reading(a).or_else(|| row.reading(b));
+    HourInput {
+        op_time_hr: row.op_time_hr(),
+        load_mw: row.reading(Reading::LoadMw),
+        so2_ppm: either(Reading::So2PpmWet, Reading::So2PpmDry),
+        nox_ppm: either(Reading::NoxPpmWet, Reading::NoxPpmDry),
+        o2_pct: either(Reading::O2PctWet, Reading::O2PctDry),
+        co2_pct: either(Reading::Co2PctWet, Reading::Co2PctDry),
+        flow_scfh_wet: row.reading(Reading::FlowScfhWet),
+        h2o_pct: row.reading(Reading::H2oPct),
+    }
+}
+
+/// What the hourly data of one unit gave for one year.
+#[derive(Clone, Debug, PartialEq)]
+pub struct HourlyResult {
+    /// Hourly quantities by month; quantities from fuel records are absent here.
+    pub year: Year,
+    /// Σ operating time over the year's hours.
+    pub operating_hours: Decimal,
+    /// Hours of the year with a substituted SO2, flow and NOx rate value.
+    pub substituted_hours: [u32; 3],
+    /// Percent monitor data availability at the last operating hour of the data (§75.32).
+    pub availability_pct: [Option<Decimal>; 3],
+    /// Hours of the year streamed.
+    pub hours: u64,
+}
+
+/// Sums a unit's hours for one year.
+pub struct HourlyYear<'a> {
+    unit: &'a Unit,
+    stream: UnitStream,
+    year_start: i64,
+    year_end: i64,
+    month_starts: [i64; 13],
+    /// Per day of the year, where each quantity comes from.
+    sources: Vec<[Source; 4]>,
+    result: HourlyResult,
+    last_pushed: Option<i64>,
+}
+
+fn stream_error(unit: &Unit, e: SubstituteError) -> String {
+    format!("unit {}: {e}", unit.id)
+}
+
+impl<'a> HourlyYear<'a> {
+    pub fn new(unit: &'a Unit, config: StreamConfig, year: i32) -> Result<HourlyYear<'a>, String> {
+        let stream = UnitStream::new(config).map_err(|e| stream_error(unit, e))?;
+        let start = |y: i32, m: u32| {
+            hour_index(
+                NaiveDate::from_ymd_opt(y, m, 1)
+                    .expect("valid month")
+                    .and_hms_opt(0, 0, 0)
+                    .expect("midnight"),
+            )
+        };
+        let mut month_starts = [0i64; 13];
+        for m in 1..=12u32 {
+            month_starts[m as usize - 1] = start(year, m);
+        }
+        month_starts[12] = start(year + 1, 1);
+        let first = NaiveDate::from_ymd_opt(year, 1, 1).expect("valid year");
+        let days =
+            (NaiveDate::from_ymd_opt(year + 1, 1, 1).expect("valid year") - first).num_days();
+        let sources = (0..days)
+            .map(|d| {
+                let day = first + chrono::Duration::days(d);
+                Quantity::ALL.map(|q| {
+                    match unit.method_for(q, unit.fuel, day, day).map(|m| &m.method) {
+                        Some(Method::Cems { .. }) => Source::Stream,
+                        Some(Method::DefaultRate { rate_lb_per_mmbtu })
+                            if unit.heat_input_by_cems() =>
+                        {
+                            Source::DefaultRate(*rate_lb_per_mmbtu)
+                        }
+                        _ => Source::None,
+                    }
+                })
+            })
+            .collect();
+        let mut zeros = Amounts::default();
+        for q in Quantity::ALL {
+            if unit.tracks(q)
+                && unit
+                    .methods
+                    .iter()
+                    .any(|m| m.quantity == q && unit.from_hourly(&m.method))
+            {
+                zeros.set(q, Decimal::ZERO);
+            }
+        }
+        let mut months = Year::default();
+        for m in 1..=12 {
+            months.add_month(m, zeros);
+        }
+        Ok(HourlyYear {
+            unit,
+            stream,
+            year_start: month_starts[0],
+            year_end: month_starts[12],
+            month_starts,
+            sources,
+            result: HourlyResult {
+                year: months,
+                operating_hours: Decimal::ZERO,
+                substituted_hours: [0; 3],
+                availability_pct: [None; 3],
+                hours: 0,
+            },
+            last_pushed: None,
+        })
+    }
+
+    /// The first hour after the year: the caller streams hours before it.
+    pub fn end_hour(&self) -> i64 {
+        self.year_end
+    }
+
+    /// Feed the next stored hour (in hour order, before `end_hour`).
+    pub fn push(&mut self, row: &HourRow) -> Result<(), String> {
+        assert!(
+            row.hour < self.year_end,
+            "hours after the year are not streamed"
+        );
+        self.last_pushed = Some(row.hour);
+        self.stream
+            .push(row.hour, hour_input(row))
+            .map_err(|e| format!("{} at {}", stream_error(self.unit, e), hour_label(row.hour)))?;
+        while let Some(out) = self.stream.next_ready() {
+            self.add(&out);
+        }
+        Ok(())
+    }
+
+    fn add(&mut self, out: &HourOut) {
+        if out.clock_hour < self.year_start {
+            return;
+        }
+        let r = &mut self.result;
+        r.hours += 1;
+        r.operating_hours += out.input.op_time_hr;
+        for p in Parameter::ALL {
+            if matches!(out.fill(p), Fill::Substituted(_)) {
+                r.substituted_hours[p.index()] += 1;
+            }
+        }
+        let month = self.month_starts.partition_point(|&s| s <= out.clock_hour) as u32;
+        let day = ((out.clock_hour - self.year_start) / 24) as usize;
+        let heat_input = out.result.heat_input().map(|h| h.0).unwrap_or_default();
+        let mut amounts = Amounts::default();
+        for q in Quantity::ALL {
+            let value = match self.sources[day][q.index()] {
+                Source::None => continue,
+                Source::DefaultRate(rate) => rate * heat_input,
+                Source::Stream => match q {
+                    Quantity::HeatInput => heat_input,
+                    Quantity::So2 => out.result.so2().map(|m| m.0).unwrap_or_default(),
+                    Quantity::Nox => out.result.nox().map(|m| m.0).unwrap_or_default(),
+                    Quantity::Co2 => out
+                        .result
+                        .co2()
+                        .map(|t| t.0 * LB_PER_TON)
+                        .unwrap_or_default(),
+                },
+            };
+            amounts.set(q, value);
+        }
+        r.year.add_month(month, amounts);
+    }
+
+    /// Close the stream and return the year's sums.
+    pub fn finish(mut self) -> Result<HourlyResult, String> {
+        self.stream
+            .finish()
+            .map_err(|e| stream_error(self.unit, e))?;
+        while let Some(out) = self.stream.next_ready() {
+            self.add(&out);
+        }
+        let summary = self.stream.summary();
+        for (i, p) in summary.parameters.iter().enumerate() {
+            self.result.availability_pct[i] = p.and_then(|p| p.mda_pct);
+        }
+        Ok(self.result)
+    }
+}
+
+/// The first hour of January 1 of `year`.
+pub fn year_start_hour(year: i32) -> i64 {
+    hour_index(
+        NaiveDate::from_ymd_opt(year, 1, 1)
+            .expect("valid year")
+            .and_hms_opt(0, 0, 0)
+            .expect("midnight"),
+    )
+}
