@@ -1,7 +1,7 @@
 //! `flue demo`: the invented Marrow Creek Station, built from the files in
 //! samples/ (compiled into the binary, so it runs from any directory).
 
-use crate::import::{analyses, fuel, site, InputFile};
+use crate::import::{analyses, fuel, hourly, site, InputFile};
 use crate::ledger::Ledger;
 use crate::report::{self, Format};
 use anyhow::{bail, Context};
@@ -62,7 +62,12 @@ fn prepare(dir: Option<&Path>) -> anyhow::Result<PathBuf> {
 
 pub fn run(args: &DemoArgs) -> super::Outcome {
     let dir = prepare(args.dir.as_deref())?;
-    for (name, text) in FILES {
+    let k2_hourly = super::demo_hourly::k2_csv(DEMO_YEAR);
+    let files = FILES
+        .iter()
+        .copied()
+        .chain([("hourly-k2.csv", k2_hourly.as_str())]);
+    for (name, text) in files {
         std::fs::write(dir.join(name), text)
             .with_context(|| format!("cannot write {}", dir.join(name).display()))?;
     }
@@ -82,8 +87,15 @@ pub fn run(args: &DemoArgs) -> super::Outcome {
     site::load(&mut ledger, &input("site.toml")?, &stamp)?;
     let a = analyses::import(&mut ledger, &input("analyses.csv")?, None, &stamp)?;
     let f = fuel::import(&mut ledger, &input("fuel.csv")?, None, &stamp)?;
+    let h = hourly::import_named(
+        &mut ledger,
+        &dir.join("hourly-k2.csv"),
+        "hourly-k2.csv",
+        None,
+        &stamp,
+    )?;
     eprintln!("demo ledger: {}", ledger_path.display());
-    eprintln!("  site.toml loaded; analyses.csv: {a}; fuel.csv: {f}");
+    eprintln!("  site.toml loaded; analyses.csv: {a}; fuel.csv: {f}; hourly-k2.csv: {h}");
     eprintln!(
         "  try: flue --ledger {} report annual --year {DEMO_YEAR} --format json\n",
         ledger_path.display()

@@ -2,6 +2,7 @@
 //! Only this module prints.
 
 mod demo;
+mod demo_hourly;
 mod import;
 mod init;
 mod report;

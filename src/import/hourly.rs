@@ -247,7 +247,18 @@ pub fn import(
     correct: Option<&str>,
     stamp: &Stamp,
 ) -> Result<Outcome, ImportError> {
-    let name = path.display().to_string();
+    import_named(ledger, path, &path.display().to_string(), correct, stamp)
+}
+
+/// Import an hourly file, naming it `name` in messages and in the ledger.
+pub fn import_named(
+    ledger: &mut Ledger,
+    path: &Path,
+    name: &str,
+    correct: Option<&str>,
+    stamp: &Stamp,
+) -> Result<Outcome, ImportError> {
+    let name = name.to_string();
     let meta = std::fs::metadata(path)
         .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
     if !meta.is_file() {

@@ -101,6 +101,43 @@ pub fn annual(r: &AnnualReport) -> String {
     right_align(&mut units, 3);
     let _ = writeln!(out, "{units}\n");
 
+    let monitored: Vec<_> = r
+        .units
+        .iter()
+        .filter(|u| u.operating_hours.is_some())
+        .collect();
+    if !monitored.is_empty() {
+        let mut cems = table(&[
+            "Unit",
+            "Operating hours",
+            "Substituted SO2 h",
+            "Substituted flow h",
+            "Substituted NOx h",
+            "Availability SO2 / flow / NOx (%)",
+        ]);
+        for u in monitored {
+            let a = u.monitor_data_availability_pct.unwrap_or_default();
+            cems.add_row(vec![
+                u.unit.clone(),
+                fixed(u.operating_hours, 2),
+                u.substituted_hours.so2.to_string(),
+                u.substituted_hours.flow.to_string(),
+                u.substituted_hours.nox.to_string(),
+                format!(
+                    "{} / {} / {}",
+                    fixed(a.so2, 1),
+                    fixed(a.flow, 1),
+                    fixed(a.nox, 1)
+                ),
+            ]);
+        }
+        right_align(&mut cems, 1);
+        let _ = writeln!(
+            out,
+            "Monitor data (missing hours filled by 40 CFR 75.31 and 75.33)\n{cems}\n"
+        );
+    }
+
     let mut periods = table(&[
         "Unit",
         "Period",
