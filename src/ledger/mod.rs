@@ -6,10 +6,12 @@
 //! foreign keys are on; a file that is not ours is refused (R3); input rows
 //! are only ever inserted.
 
+mod allowances;
 mod hourly;
 pub mod migrations;
 mod rows;
 
+pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
 pub use hourly::HourSource;
 
 use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
