@@ -73,5 +73,7 @@ pub fn annual_report(
             errors.join("\n")
         )
     })?;
-    Ok(report::model::annual(&site, version.version, year, &years))
+    let mut model = report::model::annual(&site, version.version, year, &years);
+    model.programs = super::allowances::program_reports(ledger, &site, year)?;
+    Ok(model)
 }
