@@ -53,7 +53,8 @@ pub fn season_tons(program: &Program, units: &[UnitYear]) -> Result<Option<Tons>
             lb = Some(lb.unwrap_or(Lb::ZERO) + Lb(v));
         }
     }
-    Ok(lb.map(Lb::to_tons))
+    // Normalized as the annual report shows tons: 1200.5, not 1200.50.
+    Ok(lb.map(|lb| Tons(lb.to_tons().0.normalize())))
 }
 
 #[cfg(test)]
