@@ -6,6 +6,7 @@
 //! command line.
 
 pub mod allowances;
+pub mod assemble;
 pub mod cli;
 pub mod compute;
 pub mod csvread;

@@ -13,6 +13,7 @@
 #![deny(clippy::float_arithmetic)]
 
 pub mod cost;
+pub mod emissions;
 pub mod holdings;
 pub mod position;
 pub mod reconcile;
@@ -20,6 +21,7 @@ pub mod serials;
 pub mod settle;
 
 pub use cost::{cost_summary, CostError, CostSummary};
+pub use emissions::{season_tons, EmissionsError};
 pub use holdings::{
     Applied, Balance, Book, HeldBlock, Holder, HoldingKey, Holdings, RowError, Transaction,
     TransactionKind, TxError, QUANTITY_MAX,

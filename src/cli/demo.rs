@@ -1,7 +1,7 @@
 //! `flue demo`: the invented Marrow Creek Station, built from the files in
 //! samples/ (compiled into the binary, so it runs from any directory).
 
-use crate::import::{analyses, fuel, hourly, site, InputFile};
+use crate::import::{allowances, analyses, fuel, hourly, site, InputFile};
 use crate::ledger::Ledger;
 use crate::report::{self, Format};
 use anyhow::{bail, Context};
@@ -16,7 +16,14 @@ const FILES: &[(&str, &str)] = &[
     ("site.toml", include_str!("../../samples/site.toml")),
     ("analyses.csv", include_str!("../../samples/analyses.csv")),
     ("fuel.csv", include_str!("../../samples/fuel.csv")),
+    (
+        "allowances.csv",
+        include_str!("../../samples/allowances.csv"),
+    ),
 ];
+
+/// The program the demo settles for `DEMO_YEAR`; the other stays open.
+pub const DEMO_SETTLED_PROGRAM: &str = "SO2-ANNUAL";
 
 #[derive(Debug, Args)]
 pub struct DemoArgs {
@@ -94,8 +101,17 @@ pub fn run(args: &DemoArgs) -> super::Outcome {
         None,
         &stamp,
     )?;
+    let al = allowances::import(&mut ledger, &input("allowances.csv")?, None, &stamp)?;
+    let (_, settled) =
+        allowances::settle(&mut ledger, None, DEMO_SETTLED_PROGRAM, DEMO_YEAR, &stamp)?;
     eprintln!("demo ledger: {}", ledger_path.display());
-    eprintln!("  site.toml loaded; analyses.csv: {a}; fuel.csv: {f}; hourly-k2.csv: {h}");
+    eprintln!(
+        "  site.toml loaded; analyses.csv: {a}; fuel.csv: {f}; hourly-k2.csv: {h}; allowances.csv: {al}"
+    );
+    eprintln!(
+        "  settled {DEMO_SETTLED_PROGRAM} {DEMO_YEAR}: {} allowances deducted",
+        settled.deducted
+    );
     eprintln!(
         "  try: flue --ledger {} report annual --year {DEMO_YEAR} --format json\n",
         ledger_path.display()

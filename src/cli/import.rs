@@ -22,6 +22,10 @@ pub enum ImportCommand {
         after_help = "Examples:\n  flue import hourly k2-2025.csv\n  flue import hourly k2-fix.csv --correct \"flow monitor re-calibrated\""
     )]
     Hourly(ImportArgs),
+    /// Allowance transactions: id,date,kind,program,vintage,quantity,from,to,price,note[,serial_from,serial_to]
+    /// (kind allocation, transfer or adjustment; an empty from or to is the program's issuer)
+    #[command(after_help = "Example:\n  flue import allowances samples/allowances.csv")]
+    Allowances(super::allowances::ImportAllowancesArgs),
 }
 
 #[derive(Debug, Args)]
@@ -41,6 +45,9 @@ fn non_empty(s: &str) -> Result<String, String> {
 }
 
 pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
+    if let ImportCommand::Allowances(a) = cmd {
+        return super::allowances::run_import(a, ledger_path);
+    }
     let mut ledger = Ledger::open(ledger_path)?;
     let stamp = super::stamp();
     let (args, outcome): (&ImportArgs, Outcome) = match cmd {
@@ -57,6 +64,7 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
             a,
             hourly::import(&mut ledger, &a.file, a.correct.as_deref(), &stamp)?,
         ),
+        ImportCommand::Allowances(_) => unreachable!("handled above"),
         ImportCommand::Fuel(a) => (
             a,
             fuel::import(

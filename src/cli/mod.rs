@@ -1,6 +1,7 @@
 //! The command line: argument parsing and one thin file per command.
 //! Only this module prints.
 
+mod allowances;
 mod demo;
 mod demo_hourly;
 mod import;
@@ -17,6 +18,8 @@ Examples:
   flue site load samples/site.toml
   flue import analyses samples/analyses.csv
   flue import fuel samples/fuel.csv
+  flue import allowances samples/allowances.csv
+  flue allowances reconcile --program SO2-ANNUAL --year 2025
   flue report annual --year 2025
   flue demo
 
@@ -49,6 +52,9 @@ pub enum Command {
     /// Reports.
     #[command(subcommand)]
     Report(report::ReportCommand),
+    /// Allowances: transfers, balances, serial blocks, reconciliation, settlement, position.
+    #[command(subcommand)]
+    Allowances(allowances::AllowancesCommand),
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
@@ -63,6 +69,7 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Site(cmd) => site::run(cmd, &cli.ledger),
         Command::Import(cmd) => import::run(cmd, &cli.ledger),
         Command::Report(cmd) => report::run(cmd, &cli.ledger),
+        Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
     }
 }

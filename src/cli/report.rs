@@ -1,5 +1,3 @@
-use crate::compute::facility_year;
-use crate::compute::hourly::{stream_config, HourlyResult, HourlyYear};
 use crate::ledger::{Ledger, Reads};
 use crate::report::{self, AnnualReport, Format};
 use anyhow::{anyhow, bail};
@@ -65,48 +63,8 @@ pub fn annual_report(
     };
     let site = crate::site::parse(&version.source)
         .map_err(|e| anyhow!("stored site file no longer parses: {}", e[0]))?;
-    let samples = ledger.samples()?;
-    let uses = ledger.fuel_uses()?;
-    let mut years = facility_year(&site, &samples, &uses, year).map_err(|errors| {
-        anyhow!(
-            "cannot compute {year} for facility {}:\n{}",
-            site.facility.id,
-            errors.join("\n")
-        )
-    })?;
-    for unit_year in years.iter_mut() {
-        if let Some(result) = hourly_year(ledger, unit_year.unit, site.facility.rounding, year)? {
-            unit_year.add_hourly(result);
-        }
-    }
-    Ok(report::model::annual(&site, version.version, year, &years))
-}
-
-/// Stream a CEMS unit's stored hours through the hourly engine for one year.
-pub fn hourly_year(
-    ledger: &Ledger,
-    unit: &crate::site::Unit,
-    rounding: crate::site::Rounding,
-    year: i32,
-) -> anyhow::Result<Option<HourlyResult>> {
-    if !unit.methods.iter().any(|m| unit.from_hourly(&m.method)) {
-        return Ok(None);
-    }
-    let Some(present) = ledger.hourly_present(&unit.id)? else {
-        return Ok(None);
-    };
-    let config = stream_config(unit, rounding, &present).map_err(|e| anyhow!(e))?;
-    let mut acc = HourlyYear::new(unit, config, year).map_err(|e| anyhow!(e))?;
-    let mut failed: Option<String> = None;
-    ledger.each_hour(&unit.id, i64::MIN, acc.end_hour(), |row| {
-        if failed.is_none() {
-            if let Err(e) = acc.push(row) {
-                failed = Some(e);
-            }
-        }
-    })?;
-    if let Some(e) = failed {
-        bail!(e);
-    }
-    Ok(Some(acc.finish().map_err(|e| anyhow!(e))?))
+    let years = crate::assemble::facility_years(ledger, &site, year, None)?;
+    let mut model = report::model::annual(&site, version.version, year, &years);
+    model.programs = super::allowances::program_reports(ledger, &site, year)?;
+    Ok(model)
 }

@@ -7,6 +7,7 @@
 //! says `--correct REASON`: then it supersedes the held row, which stays
 //! readable.
 
+pub mod allowances;
 pub mod analyses;
 pub mod fuel;
 pub mod hourly;

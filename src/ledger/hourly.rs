@@ -1,6 +1,6 @@
 //! Hourly monitor rows: inserts and the streams reports read.
 
-use super::{Ledger, Result, Tx};
+use super::{Ledger, Reads, Result, Tx};
 use crate::records::{HourRow, Reading};
 use rusqlite::{params, Connection, OptionalExtension, Row};
 
@@ -106,9 +106,10 @@ pub struct HourSource {
     pub sha256: String,
 }
 
-impl Ledger {
+/// Hourly reads, for the ledger and for a write transaction alike.
+pub trait HourlyReads: Reads {
     /// Which reading columns a unit's stored hours use; `None` without hours.
-    pub fn hourly_present(&self, unit: &str) -> Result<Option<[bool; Reading::COUNT]>> {
+    fn hourly_present(&self, unit: &str) -> Result<Option<[bool; Reading::COUNT]>> {
         let cols: Vec<String> = READING_COLUMNS
             .split(", ")
             .map(|c| format!("max({} IS NOT NULL)", c.trim()))
@@ -117,7 +118,7 @@ impl Ledger {
             "SELECT count(*), {} FROM hourly WHERE unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1)",
             cols.join(", ")
         );
-        Ok(self.conn.query_row(&sql, [unit], |r| {
+        Ok(self.conn().query_row(&sql, [unit], |r| {
             let n: i64 = r.get(0)?;
             if n == 0 {
                 return Ok(None);
@@ -131,16 +132,14 @@ impl Ledger {
     }
 
     /// Stream a unit's hours in force over `[from, to)`, in hour order.
-    pub fn each_hour(
-        &self,
-        unit: &str,
-        from: i64,
-        to: i64,
-        mut f: impl FnMut(&HourRow),
-    ) -> Result<()> {
-        each_hour(&self.conn, unit, from, to, &mut f)
+    fn each_hour(&self, unit: &str, from: i64, to: i64, mut f: impl FnMut(&HourRow)) -> Result<()> {
+        each_hour(self.conn(), unit, from, to, &mut f)
     }
+}
 
+impl<T: Reads + ?Sized> HourlyReads for T {}
+
+impl Ledger {
     /// The stored row in force for a unit-hour, with its source.
     pub fn hour_with_source(&self, unit: &str, hour: i64) -> Result<Option<(HourRow, HourSource)>> {
         let sql = format!(

@@ -4,6 +4,10 @@
 pub const MIGRATIONS: &[(&str, &str)] = &[
     ("0001_init", include_str!("../../schema/0001_init.sql")),
     ("0002_hourly", include_str!("../../schema/0002_hourly.sql")),
+    (
+        "0003_allowances",
+        include_str!("../../schema/0003_allowances.sql"),
+    ),
 ];
 
 /// Our own SQLite `application_id`: the ASCII bytes "FLUE". A file without

@@ -6,11 +6,13 @@
 //! foreign keys are on; a file that is not ours is refused (R3); input rows
 //! are only ever inserted.
 
+mod allowances;
 mod hourly;
 pub mod migrations;
 mod rows;
 
-pub use hourly::HourSource;
+pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use hourly::{HourSource, HourlyReads};
 
 use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
 use rusqlite::{config::DbConfig, Connection, ErrorCode, OpenFlags, TransactionBehavior};

@@ -1,5 +1,6 @@
 //! One report model, several renderers. Renderers format; none computes.
 
+pub mod allowances;
 pub mod csv;
 pub mod model;
 pub mod table;

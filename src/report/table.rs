@@ -166,10 +166,59 @@ pub fn annual(r: &AnnualReport) -> String {
     }
     right_align(&mut periods, 2);
     let _ = writeln!(out, "Quarters and ozone season\n{periods}\n");
+    if !r.programs.is_empty() {
+        let _ = writeln!(out, "Allowance programs\n{}\n", programs(&r.programs));
+    }
     let _ = writeln!(
         out,
         "{ABSENT} = quantity not tracked for the unit (no method in the site file)."
     );
     let _ = writeln!(out, "Caution: {}", r.caution);
     out
+}
+
+/// The reconciliation objects of `report annual` (DESIGN.md `allowances
+/// reconcile` fields), one row per program.
+fn programs(programs: &[serde_json::Value]) -> Table {
+    let mut t = table(&[
+        "Program",
+        "Account",
+        "Emissions (tons)",
+        "Required",
+        "Eligible held",
+        "Shortfall",
+        "Penalty",
+        "Offset owed",
+        "Carried forward",
+        "Settled",
+    ]);
+    let text = |v: &serde_json::Value, k: &str| match &v[k] {
+        serde_json::Value::String(s) => s.clone(),
+        serde_json::Value::Null => ABSENT.to_string(),
+        other => other.to_string(),
+    };
+    let decimal = |v: &serde_json::Value, k: &str, dp: u32| {
+        let parsed = v[k].as_str().and_then(|s| Decimal::from_str_exact(s).ok());
+        fixed(parsed, dp)
+    };
+    for p in programs {
+        t.add_row(vec![
+            text(p, "program"),
+            text(p, "account"),
+            decimal(p, "emissions_tons", 1),
+            text(p, "allowances_required"),
+            text(p, "eligible_held"),
+            text(p, "shortfall"),
+            decimal(p, "penalty", 2),
+            text(p, "offset_next_year"),
+            text(p, "carried_forward"),
+            if p["settled"] == serde_json::Value::Bool(true) {
+                "settled".to_string()
+            } else {
+                "not settled".to_string()
+            },
+        ]);
+    }
+    right_align(&mut t, 2);
+    t
 }

@@ -1,0 +1,94 @@
+//! A facility's year from the ledger: fuel records and hourly monitor data
+//! through the pure engine, per unit. Every report, reconciliation and
+//! position reads its emissions through here, so they cannot disagree.
+
+use crate::compute::hourly::{stream_config, HourlyResult, HourlyYear};
+use crate::compute::{facility_year, UnitYear};
+use crate::ledger::{HourlyReads, LedgerError, Reads};
+use crate::records::{hour_index, FuelUse, Stored};
+use crate::site::{Rounding, Site, Unit};
+use chrono::NaiveDate;
+use thiserror::Error;
+
+#[derive(Debug, Error)]
+pub enum AssembleError {
+    #[error(transparent)]
+    Ledger(#[from] LedgerError),
+    #[error("cannot compute {year} for facility {facility}:\n{problems}")]
+    Compute {
+        year: i32,
+        facility: String,
+        problems: String,
+    },
+}
+
+/// Every unit's year. With `through`, only fuel records ending by that day
+/// and hours before its end count (emissions to date).
+pub fn facility_years<'a>(
+    r: &(impl Reads + ?Sized),
+    site: &'a Site,
+    year: i32,
+    through: Option<NaiveDate>,
+) -> Result<Vec<UnitYear<'a>>, AssembleError> {
+    let fail = |problems: String| AssembleError::Compute {
+        year,
+        facility: site.facility.id.clone(),
+        problems,
+    };
+    let samples = r.samples()?;
+    let uses: Vec<Stored<FuelUse>> = r
+        .fuel_uses()?
+        .into_iter()
+        .filter(|u| through.is_none_or(|t| u.value.end <= t))
+        .collect();
+    let mut years = facility_year(site, &samples, &uses, year).map_err(|e| fail(e.join("\n")))?;
+    let hour_limit = through.map(|t| {
+        hour_index(
+            t.succ_opt()
+                .unwrap_or(t)
+                .and_hms_opt(0, 0, 0)
+                .expect("midnight"),
+        )
+    });
+    for unit_year in years.iter_mut() {
+        if let Some(result) =
+            hourly_year(r, unit_year.unit, site.facility.rounding, year, hour_limit)
+                .map_err(fail)?
+        {
+            unit_year.add_hourly(result);
+        }
+    }
+    Ok(years)
+}
+
+/// Stream a CEMS unit's stored hours through the hourly engine for one year.
+fn hourly_year(
+    r: &(impl Reads + ?Sized),
+    unit: &Unit,
+    rounding: Rounding,
+    year: i32,
+    hour_limit: Option<i64>,
+) -> Result<Option<HourlyResult>, String> {
+    if !unit.methods.iter().any(|m| unit.from_hourly(&m.method)) {
+        return Ok(None);
+    }
+    let Some(present) = r.hourly_present(&unit.id).map_err(|e| e.to_string())? else {
+        return Ok(None);
+    };
+    let config = stream_config(unit, rounding, &present)?;
+    let mut acc = HourlyYear::new(unit, config, year)?;
+    let end = hour_limit.map_or(acc.end_hour(), |l| l.min(acc.end_hour()));
+    let mut failed: Option<String> = None;
+    r.each_hour(&unit.id, i64::MIN, end, |row| {
+        if failed.is_none() {
+            if let Err(e) = acc.push(row) {
+                failed = Some(e);
+            }
+        }
+    })
+    .map_err(|e| e.to_string())?;
+    if let Some(e) = failed {
+        return Err(e);
+    }
+    acc.finish().map(Some)
+}
