@@ -92,3 +92,52 @@ fn hourly_year(
     }
     acc.finish().map(Some)
 }
+
+/// One unit-hour as the hourly engine computed it, with every hour before it
+/// streamed so that substitution sees the same history as the report.
+pub fn hour_out(
+    r: &(impl Reads + ?Sized),
+    unit: &Unit,
+    rounding: Rounding,
+    hour: i64,
+) -> Result<Option<crate::emissions::substitute::HourOut>, String> {
+    let Some(present) = r.hourly_present(&unit.id).map_err(|e| e.to_string())? else {
+        return Ok(None);
+    };
+    let config = stream_config(unit, rounding, &present)?;
+    let mut stream = crate::emissions::substitute::UnitStream::new(config)
+        .map_err(|e| format!("unit {}: {e}", unit.id))?;
+    let mut found = None;
+    let mut failed: Option<String> = None;
+    // Hours after the one asked for are streamed too: a gap's substitute
+    // needs the hour after the gap.
+    r.each_hour(&unit.id, i64::MIN, i64::MAX, |row| {
+        if found.is_some() || failed.is_some() {
+            return;
+        }
+        if let Err(e) = stream.push(row.hour, crate::compute::hourly::hour_input(row)) {
+            failed = Some(format!("unit {}: {e}", unit.id));
+            return;
+        }
+        while let Some(out) = stream.next_ready() {
+            if out.clock_hour == hour {
+                found = Some(out);
+            }
+        }
+    })
+    .map_err(|e| e.to_string())?;
+    if let Some(e) = failed {
+        return Err(e);
+    }
+    if found.is_none() {
+        stream
+            .finish()
+            .map_err(|e| format!("unit {}: {e}", unit.id))?;
+        while let Some(out) = stream.next_ready() {
+            if out.clock_hour == hour {
+                found = Some(out);
+            }
+        }
+    }
+    Ok(found)
+}

@@ -4,6 +4,7 @@
 mod allowances;
 mod demo;
 mod demo_hourly;
+mod explain;
 mod import;
 mod init;
 mod report;
@@ -55,6 +56,11 @@ pub enum Command {
     /// Allowances: transfers, balances, serial blocks, reconciliation, settlement, position.
     #[command(subcommand)]
     Allowances(allowances::AllowancesCommand),
+    /// How a figure was computed: equations, constants and input rows.
+    #[command(
+        after_help = "Examples:\n  flue explain so2 --unit K2 --hour 2025-06-17T05:00\n  flue explain nox --unit K1 --year 2025 --format json"
+    )]
+    Explain(explain::ExplainArgs),
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
@@ -71,6 +77,7 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Report(cmd) => report::run(cmd, &cli.ledger),
         Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
+        Command::Explain(args) => explain::run(args, &cli.ledger),
     }
 }
 

@@ -2,6 +2,7 @@
 
 pub mod allowances;
 pub mod csv;
+pub mod explain;
 pub mod model;
 pub mod table;
 
