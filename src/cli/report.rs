@@ -105,6 +105,17 @@ pub fn hourly_year(
             }
         }
     })?;
+    // A missing-data period open at the year's end closes at a later
+    // stored hour: stream on until it does (40 CFR 75.31(b), 75.33).
+    if failed.is_none() && acc.waits_past_year_end() {
+        ledger.each_hour_while(&unit.id, acc.end_hour(), |row| {
+            if let Err(e) = acc.push(row) {
+                failed = Some(e);
+                return false;
+            }
+            acc.waits_past_year_end()
+        })?;
+    }
     if let Some(e) = failed {
         bail!(e);
     }
