@@ -87,6 +87,19 @@ fn hourly_year(
         }
     })
     .map_err(|e| e.to_string())?;
+    // A missing-data period open at the year's end closes at a later
+    // stored hour: stream on until it does (40 CFR 75.31(b), 75.33).
+    // Emissions to date (`hour_limit`) stop at the limit instead.
+    if failed.is_none() && hour_limit.is_none() && acc.waits_past_year_end() {
+        r.each_hour_while(&unit.id, acc.end_hour(), |row| {
+            if let Err(e) = acc.push(row) {
+                failed = Some(e);
+                return false;
+            }
+            acc.waits_past_year_end()
+        })
+        .map_err(|e| e.to_string())?;
+    }
     if let Some(e) = failed {
         return Err(e);
     }

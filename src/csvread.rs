@@ -96,12 +96,10 @@ impl fmt::Display for FileErrors {
             }
             write!(f, "{}", e.display(&self.file))?;
         }
-        if self.errors.len() > ERRORS_SHOWN_MAX {
-            write!(
-                f,
-                "\nand {} more errors",
-                self.errors.len() - ERRORS_SHOWN_MAX
-            )?;
+        // Errors past those kept in memory are counted in `omitted`.
+        let total = self.errors.len() + self.omitted;
+        if total > ERRORS_SHOWN_MAX {
+            write!(f, "\nand {} more errors", total - ERRORS_SHOWN_MAX)?;
         }
         Ok(())
     }

@@ -3,8 +3,11 @@
 //! caller streams the rows in from the ledger.
 //!
 //! The stream starts at the unit's first stored hour, not at January 1, so
-//! that lookbacks and availability see the history before the year; only
-//! hours inside the year are summed.
+//! that lookbacks and availability see the history before the year. It goes
+//! on past December 31 while a missing-data period that began in the year
+//! is still open, so that the period's hour after (40 CFR 75.31(b),
+//! 75.33) is the stored one, not the end of the year. Only hours inside
+//! the year are summed.
 
 use crate::emissions::cems::{Bases, Basis, CemsUnit, Computes, GapBounds, HourInput};
 use crate::emissions::constants::f_factors;
@@ -149,6 +152,8 @@ pub struct HourlyYear<'a> {
     sources: Vec<[Source; 4]>,
     result: HourlyResult,
     last_pushed: Option<i64>,
+    /// Availability as at the year's last hour, taken before any later hour is pushed.
+    availability_at_year_end: Option<[Option<Decimal>; 3]>,
 }
 
 fn stream_error(unit: &Unit, e: SubstituteError) -> String {
@@ -220,20 +225,29 @@ impl<'a> HourlyYear<'a> {
                 hours: 0,
             },
             last_pushed: None,
+            availability_at_year_end: None,
         })
     }
 
-    /// The first hour after the year: the caller streams hours before it.
+    /// The first hour after the year: the caller streams every hour before
+    /// it, then later hours while [`waits_past_year_end`](Self::waits_past_year_end).
     pub fn end_hour(&self) -> i64 {
         self.year_end
     }
 
-    /// Feed the next stored hour (in hour order, before `end_hour`).
+    /// Whether an hour of the year waits for a missing-data period that is
+    /// still open, so the hours after the year must be streamed to close it.
+    pub fn waits_past_year_end(&self) -> bool {
+        self.stream
+            .first_waiting_hour()
+            .is_some_and(|h| h < self.year_end)
+    }
+
+    /// Feed the next stored hour, in hour order.
     pub fn push(&mut self, row: &HourRow) -> Result<(), String> {
-        assert!(
-            row.hour < self.year_end,
-            "hours after the year are not streamed"
-        );
+        if row.hour >= self.year_end && self.availability_at_year_end.is_none() {
+            self.availability_at_year_end = Some(self.availability());
+        }
         self.last_pushed = Some(row.hour);
         self.stream
             .push(row.hour, hour_input(row))
@@ -244,8 +258,15 @@ impl<'a> HourlyYear<'a> {
         Ok(())
     }
 
+    fn availability(&self) -> [Option<Decimal>; 3] {
+        self.stream
+            .summary()
+            .parameters
+            .map(|p| p.and_then(|p| p.mda_pct))
+    }
+
     fn add(&mut self, out: &HourOut) {
-        if out.clock_hour < self.year_start {
+        if out.clock_hour < self.year_start || out.clock_hour >= self.year_end {
             return;
         }
         let r = &mut self.result;
@@ -288,10 +309,9 @@ impl<'a> HourlyYear<'a> {
         while let Some(out) = self.stream.next_ready() {
             self.add(&out);
         }
-        let summary = self.stream.summary();
-        for (i, p) in summary.parameters.iter().enumerate() {
-            self.result.availability_pct[i] = p.and_then(|p| p.mda_pct);
-        }
+        self.result.availability_pct = self
+            .availability_at_year_end
+            .unwrap_or_else(|| self.availability());
         Ok(self.result)
     }
 }

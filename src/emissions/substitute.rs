@@ -915,6 +915,11 @@ impl UnitStream {
         })
     }
 
+    /// The first hour still waiting for a missing-data period to close, if any.
+    pub fn first_waiting_hour(&self) -> Option<i64> {
+        self.queue.front().map(|p| p.clock_hour)
+    }
+
     /// Counts so far; complete after [`finish`](UnitStream::finish) and draining.
     pub fn summary(&self) -> StreamSummary {
         let parameters = Parameter::ALL.map(|p| {

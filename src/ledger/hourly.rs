@@ -133,7 +133,21 @@ pub trait HourlyReads: Reads {
 
     /// Stream a unit's hours in force over `[from, to)`, in hour order.
     fn each_hour(&self, unit: &str, from: i64, to: i64, mut f: impl FnMut(&HourRow)) -> Result<()> {
-        each_hour(self.conn(), unit, from, to, &mut f)
+        each_hour(self.conn(), unit, from, to, &mut |row| {
+            f(row);
+            true
+        })
+    }
+
+    /// Stream a unit's hours in force from `from` on, in hour order, while
+    /// `f` returns true.
+    fn each_hour_while(
+        &self,
+        unit: &str,
+        from: i64,
+        mut f: impl FnMut(&HourRow) -> bool,
+    ) -> Result<()> {
+        each_hour(self.conn(), unit, from, i64::MAX, &mut f)
     }
 }
 
@@ -173,7 +187,7 @@ fn each_hour(
     unit: &str,
     from: i64,
     to: i64,
-    f: &mut impl FnMut(&HourRow),
+    f: &mut impl FnMut(&HourRow) -> bool,
 ) -> Result<()> {
     let sql = format!(
         "SELECT hour, op_time, {READING_COLUMNS} FROM hourly
@@ -187,8 +201,8 @@ fn each_hour(
     while let Some(r) = rows.next()? {
         let row = hour_row(r, 0)?;
         if let Some(p) = pending {
-            if p.hour != row.hour {
-                f(&p);
+            if p.hour != row.hour && !f(&p) {
+                return Ok(());
             }
         }
         pending = Some(row);
