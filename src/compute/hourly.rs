@@ -139,6 +139,21 @@ pub struct HourlyResult {
     pub availability_pct: [Option<Decimal>; 3],
     /// Hours of the year streamed.
     pub hours: u64,
+    /// One entry per day of the year, January 1 first: the day's SO2 mass
+    /// and heat input from the hourly data, and its substituted hours. A
+    /// compact series for the report's daily profile.
+    pub daily: Vec<DayAmounts>,
+}
+
+/// One day of a CEMS unit's hourly data, summed over the day's hours.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct DayAmounts {
+    /// Σ SO2 mass of the day's hours, lb; `None` where SO2 is not from hourly data.
+    pub so2_lb: Option<Decimal>,
+    /// Σ heat input of the day's hours, MMBtu.
+    pub heat_input_mmbtu: Decimal,
+    /// Hours of the day in which SO2, flow or NOx was substituted.
+    pub substituted_hours: u32,
 }
 
 /// Sums a unit's hours for one year.
@@ -223,6 +238,7 @@ impl<'a> HourlyYear<'a> {
                 substituted_hours: [0; 3],
                 availability_pct: [None; 3],
                 hours: 0,
+                daily: vec![DayAmounts::default(); days as usize],
             },
             last_pushed: None,
             availability_at_year_end: None,
@@ -272,13 +288,18 @@ impl<'a> HourlyYear<'a> {
         let r = &mut self.result;
         r.hours += 1;
         r.operating_hours += out.input.op_time_hr;
+        let month = self.month_starts.partition_point(|&s| s <= out.clock_hour) as u32;
+        let day = ((out.clock_hour - self.year_start) / 24) as usize;
+        let mut substituted = false;
         for p in Parameter::ALL {
             if matches!(out.fill(p), Fill::Substituted(_)) {
                 r.substituted_hours[p.index()] += 1;
+                substituted = true;
             }
         }
-        let month = self.month_starts.partition_point(|&s| s <= out.clock_hour) as u32;
-        let day = ((out.clock_hour - self.year_start) / 24) as usize;
+        if substituted {
+            r.daily[day].substituted_hours += 1;
+        }
         let heat_input = out.result.heat_input().map(|h| h.0).unwrap_or_default();
         let mut amounts = Amounts::default();
         for q in Quantity::ALL {
@@ -297,6 +318,11 @@ impl<'a> HourlyYear<'a> {
                 },
             };
             amounts.set(q, value);
+        }
+        let today = &mut r.daily[day];
+        today.heat_input_mmbtu += heat_input;
+        if let Some(so2_lb) = amounts.get(Quantity::So2) {
+            *today.so2_lb.get_or_insert(Decimal::ZERO) += so2_lb;
         }
         r.year.add_month(month, amounts);
     }

@@ -1,11 +1,12 @@
 //! The annual report model: every figure of the report, at full precision.
 
+use crate::compute::hourly::HourlyResult;
 use crate::compute::UnitYear;
 use crate::emissions::method::Quantity;
 use crate::emissions::periods::Amounts;
 use crate::site::Site;
-use crate::units::{rate_lb_per_mmbtu, Lb};
-use rust_decimal::Decimal;
+use crate::units::{rate_lb_per_mmbtu, Lb, Mmbtu};
+use rust_decimal::{Decimal, RoundingStrategy};
 use serde::Serialize;
 
 /// JSON layout version; the JSON only ever gains fields.
@@ -53,6 +54,22 @@ pub struct UnitReport {
     pub quarters: Vec<Period>,
     pub ozone_season: Period,
     pub months: Vec<Period>,
+    /// A CEMS unit's day-by-day profile, for the report's chart; absent
+    /// for a unit without hourly data.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub daily_profile: Option<DailyProfile>,
+}
+
+/// Day by day from January 1: the SO2 emission rate and the hours with a
+/// substituted value. A series to plot, not figures of record.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct DailyProfile {
+    pub first_day: String,
+    /// Σ SO2 lb / Σ heat input of the day's hours, to 0.0001 lb/MMBtu;
+    /// `null` on a day without heat input or without hourly SO2.
+    pub so2_lb_per_mmbtu: Vec<Option<Decimal>>,
+    /// Hours of the day in which SO2, flow or NOx was substituted.
+    pub substituted_hours: Vec<u32>,
 }
 
 #[derive(Debug, Clone, Copy, Serialize, PartialEq, Eq, Default)]
@@ -113,6 +130,31 @@ fn nox_rate(a: Amounts) -> Option<Decimal> {
     rate_lb_per_mmbtu(a.nox()?, a.heat_input()?).map(|r| r.0.normalize())
 }
 
+/// Decimal places of the daily profile's rate: enough to plot, short enough
+/// to keep the JSON compact.
+const DAILY_RATE_DP: u32 = 4;
+
+fn daily_profile(year: i32, h: &HourlyResult) -> DailyProfile {
+    DailyProfile {
+        first_day: format!("{year:04}-01-01"),
+        so2_lb_per_mmbtu: h
+            .daily
+            .iter()
+            .map(|d| {
+                let rate = rate_lb_per_mmbtu(Lb(d.so2_lb?), Mmbtu(d.heat_input_mmbtu))?;
+                // Rounded for the chart only (half away from zero); the
+                // report's figures keep full precision.
+                Some(
+                    rate.round(DAILY_RATE_DP, RoundingStrategy::MidpointAwayFromZero)
+                        .0
+                        .normalize(),
+                )
+            })
+            .collect(),
+        substituted_hours: h.daily.iter().map(|d| d.substituted_hours).collect(),
+    }
+}
+
 /// Build the annual report of one facility from its units' years.
 pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> AnnualReport {
     let mut facility = crate::emissions::periods::Year::default();
@@ -165,6 +207,7 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
                 months: (1..=12)
                     .map(|m| period(u.year.month(m), None, Some(m)))
                     .collect(),
+                daily_profile: u.hourly.as_ref().map(|h| daily_profile(year, h)),
             }
         })
         .collect();
