@@ -3,7 +3,9 @@
 pub mod allowances;
 pub mod csv;
 pub mod explain;
+pub mod html;
 pub mod model;
+pub mod svg;
 pub mod table;
 
 pub use model::{AnnualReport, CAUTION, FORMAT_VERSION};
@@ -14,6 +16,7 @@ pub enum Format {
     Table,
     Json,
     Csv,
+    Html,
 }
 
 /// Render a report in the chosen format.
@@ -29,5 +32,6 @@ pub fn render(
             out.write_all(b"\n")
         }
         Format::Csv => out.write_all(csv::annual(report).as_bytes()),
+        Format::Html => out.write_all(html::annual(report).as_bytes()),
     }
 }
