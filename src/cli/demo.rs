@@ -104,18 +104,18 @@ pub fn run(args: &DemoArgs) -> super::Outcome {
     let al = allowances::import(&mut ledger, &input("allowances.csv")?, None, &stamp)?;
     let (_, settled) =
         allowances::settle(&mut ledger, None, DEMO_SETTLED_PROGRAM, DEMO_YEAR, &stamp)?;
-    eprintln!("demo ledger: {}", ledger_path.display());
-    eprintln!(
+    super::note(format_args!("demo ledger: {}", ledger_path.display()));
+    super::note(format_args!(
         "  site.toml loaded; analyses.csv: {a}; fuel.csv: {f}; hourly-k2.csv: {h}; allowances.csv: {al}"
-    );
-    eprintln!(
+    ));
+    super::note(format_args!(
         "  settled {DEMO_SETTLED_PROGRAM} {DEMO_YEAR}: {} allowances deducted",
         settled.deducted
-    );
-    eprintln!(
+    ));
+    super::note(format_args!(
         "  try: flue --ledger {} report annual --year {DEMO_YEAR} --format json\n",
         ledger_path.display()
-    );
+    ));
     let model = super::report::annual_report(&ledger, None, DEMO_YEAR)?;
     super::emit(None, false, |w| report::render(&model, args.format, w))
 }

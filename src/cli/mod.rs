@@ -2,6 +2,7 @@
 //! Only this module prints.
 
 mod allowances;
+mod completions;
 mod demo;
 mod demo_hourly;
 mod explain;
@@ -12,6 +13,7 @@ mod site;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 const AFTER_HELP: &str = "\
 Examples:
@@ -22,7 +24,9 @@ Examples:
   flue import allowances samples/allowances.csv
   flue allowances reconcile --program SO2-ANNUAL --year 2025
   flue report annual --year 2025
+  flue report annual --year 2025 --format html --out mc1-2025.html
   flue demo
+  flue completions bash
 
 Results support, and never replace, the judgement of the responsible official
 and the monitoring and reporting rules of the plant's permit and local rules.";
@@ -35,6 +39,10 @@ pub struct Cli {
     #[arg(long, global = true, env = "FLUE_LEDGER", default_value = "flue.db")]
     pub ledger: PathBuf,
 
+    /// Print no informational lines on stderr (such as "wrote FILE"); errors still show.
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
+
     #[command(subcommand)]
     pub command: Command,
 }
@@ -45,16 +53,28 @@ pub enum Command {
     #[command(after_help = "Example:\n  flue --ledger plant.db init")]
     Init,
     /// Load or show the site file: facility, units, methods, accounts, programs.
-    #[command(subcommand)]
+    #[command(
+        subcommand,
+        after_help = "Examples:\n  flue site load samples/site.toml\n  flue site show"
+    )]
     Site(site::SiteCommand),
     /// Import an input file; all rows or none.
-    #[command(subcommand)]
+    #[command(
+        subcommand,
+        after_help = "Examples:\n  flue import fuel samples/fuel.csv\n  flue import hourly k2-2025.csv"
+    )]
     Import(import::ImportCommand),
     /// Reports.
-    #[command(subcommand)]
+    #[command(
+        subcommand,
+        after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format html --out mc1-2025.html"
+    )]
     Report(report::ReportCommand),
     /// Allowances: transfers, balances, serial blocks, reconciliation, settlement, position.
-    #[command(subcommand)]
+    #[command(
+        subcommand,
+        after_help = "Examples:\n  flue allowances balance\n  flue allowances reconcile --program SO2-ANNUAL --year 2025 --format csv"
+    )]
     Allowances(allowances::AllowancesCommand),
     /// How a figure was computed: equations, constants and input rows.
     #[command(
@@ -64,12 +84,31 @@ pub enum Command {
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
+    /// Print a completion script for a shell.
+    #[command(
+        after_help = "Examples:\n  flue completions bash > ~/.local/share/bash-completion/completions/flue\n  flue completions zsh > ~/.zfunc/_flue\n  flue completions fish > ~/.config/fish/completions/flue.fish"
+    )]
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff).
+    #[command(after_help = "Example:\n  flue manpage > flue.1 && man ./flue.1")]
+    Manpage,
 }
 
 /// What a command leaves for `main` to turn into an exit status.
 pub type Outcome = anyhow::Result<()>;
 
+/// Set once from `--quiet`, before the command runs.
+static QUIET: AtomicBool = AtomicBool::new(false);
+
+/// An informational line on stderr, silenced by `--quiet`.
+pub fn note(line: impl std::fmt::Display) {
+    if !QUIET.load(Ordering::Relaxed) {
+        eprintln!("{line}");
+    }
+}
+
 pub fn run(cli: Cli) -> Outcome {
+    QUIET.store(cli.quiet, Ordering::Relaxed);
     match &cli.command {
         Command::Init => init::run(&cli.ledger),
         Command::Site(cmd) => site::run(cmd, &cli.ledger),
@@ -78,6 +117,8 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
         Command::Explain(args) => explain::run(args, &cli.ledger),
+        Command::Completions(args) => completions::completions(args),
+        Command::Manpage => completions::manpage(),
     }
 }
 
@@ -130,7 +171,7 @@ pub fn emit(
             })?;
             write(&mut file).with_context(|| format!("{}: cannot write", path.display()))?;
             file.sync_all()?;
-            eprintln!("wrote {}", path.display());
+            note(format_args!("wrote {}", path.display()));
         }
     }
     Ok(())
