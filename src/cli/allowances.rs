@@ -24,6 +24,14 @@ pub enum Format {
     Json,
 }
 
+/// `reconcile` also writes CSV.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum ReconcileFormat {
+    Table,
+    Json,
+    Csv,
+}
+
 #[derive(Debug, Subcommand)]
 pub enum AllowancesCommand {
     /// Record one transfer between two accounts of the site file.
@@ -41,7 +49,7 @@ pub enum AllowancesCommand {
     Serials(SerialsArgs),
     /// A program's year: emissions against the allowances held at the true-up deadline.
     #[command(
-        after_help = "Examples:\n  flue allowances reconcile --program SO2-ANNUAL --year 2025\n  flue allowances reconcile --program NOX-OZONE --year 2025 --format json"
+        after_help = "Examples:\n  flue allowances reconcile --program SO2-ANNUAL --year 2025\n  flue allowances reconcile --program NOX-OZONE --year 2025 --format json\n  flue allowances reconcile --program SO2-ANNUAL --year 2025 --format csv > so2-2025.csv"
     )]
     Reconcile(YearArgs),
     /// Write a reconciled year's deductions and offset; once per program and year.
@@ -136,7 +144,7 @@ pub struct YearArgs {
     #[arg(long, value_parser = clap::value_parser!(i32).range(1900..=9998))]
     pub year: i32,
     #[arg(long, value_enum, default_value = "table")]
-    pub format: Format,
+    pub format: ReconcileFormat,
     #[command(flatten)]
     pub facility: FacilityArg,
 }
@@ -331,8 +339,12 @@ pub fn run(cmd: &AllowancesCommand, ledger_path: &Path) -> super::Outcome {
             let book = ledger.allowance_book(&site)?;
             let report = reconcile_report(program_year(&ledger, &site, &book, program, a.year)?);
             match a.format {
-                Format::Table => emit_text(out::reconcile(&report)),
-                Format::Json => emit_json(&report),
+                ReconcileFormat::Table => emit_text(out::reconcile(&report)),
+                ReconcileFormat::Json => emit_json(&report),
+                ReconcileFormat::Csv => emit_text(crate::report::csv::reconcile(
+                    &serde_json::to_value(&report)?,
+                    crate::report::CAUTION,
+                )),
             }
         }
         AllowancesCommand::Settle(a) => {
