@@ -797,3 +797,137 @@ pub fn annual(r: &AnnualReport) -> String {
     out.push_str("</main></body></html>\n");
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::report::model::{Availability, DailyProfile, SubstitutedHours, Totals};
+    use rust_decimal_macros::dec;
+
+    fn period(q: Option<u32>, m: Option<u32>, so2: Decimal) -> Period {
+        Period {
+            quarter: q,
+            month: m,
+            heat_input_mmbtu: Some(dec!(1000)),
+            so2_tons: Some(so2),
+            nox_tons: None,
+            co2_tons: Some(dec!(5)),
+        }
+    }
+
+    fn unit(id: &str, profile: bool) -> UnitReport {
+        UnitReport {
+            unit: id.to_string(),
+            kind: "boiler",
+            fuel: "bituminous",
+            methods: vec!["so2: cems <x>".to_string()],
+            operating_hours: profile.then_some(dec!(10)),
+            heat_input_mmbtu: Some(dec!(12000)),
+            so2_tons: Some(dec!(1234.56)),
+            nox_tons: None,
+            co2_tons: Some(dec!(60)),
+            nox_rate_lb_per_mmbtu: None,
+            substituted_hours: SubstitutedHours::default(),
+            monitor_data_availability_pct: profile.then_some(Availability::default()),
+            fuel_records: 0,
+            quarters: (1..=4).map(|q| period(Some(q), None, dec!(1))).collect(),
+            ozone_season: period(None, None, dec!(2)),
+            months: (1..=12).map(|m| period(None, Some(m), dec!(0.5))).collect(),
+            daily_profile: profile.then(|| DailyProfile {
+                first_day: "2025-01-01".to_string(),
+                so2_lb_per_mmbtu: vec![Some(dec!(1.2)), None, Some(dec!(1.3))],
+                substituted_hours: vec![0, 3, 0],
+            }),
+        }
+    }
+
+    fn report(units: Vec<UnitReport>, programs: Vec<Value>) -> AnnualReport {
+        AnnualReport {
+            format_version: 1,
+            facility: "F&1".to_string(),
+            facility_name: "<script>alert('x')</script> Works".to_string(),
+            year: 2025,
+            site_version: 3,
+            rounding: "exact",
+            units,
+            totals: Totals {
+                heat_input_mmbtu: Some(dec!(12000)),
+                so2_tons: Some(dec!(1234.56)),
+                nox_tons: None,
+                co2_tons: Some(dec!(60)),
+                nox_rate_lb_per_mmbtu: None,
+                quarters: (1..=4).map(|q| period(Some(q), None, dec!(1))).collect(),
+                ozone_season: period(None, None, dec!(2)),
+            },
+            programs,
+            caution: crate::report::CAUTION,
+        }
+    }
+
+    fn program(id: &str) -> Value {
+        serde_json::json!({
+            "program": id, "year": 2025, "account": "A\"1", "true_up_date": "2026-03-01",
+            "emissions_tons": "12.5", "tons_to_cover": 13, "allowances_required": 13,
+            "eligible_held": 10, "by_vintage": [{"vintage": 2024, "held": 10, "deduct": 10}],
+            "shortfall": 3, "penalty": "12000", "offset_vintage": 2026,
+            "offset_next_year": 3, "carried_forward": 0, "settled": false, "settlement": null
+        })
+    }
+
+    #[test]
+    fn user_strings_are_escaped() {
+        let html = annual(&report(vec![unit("U<1>", false)], vec![program("P&<b>")]));
+        assert!(!html.contains("<script>"));
+        assert!(html.contains("&lt;script&gt;alert('x')&lt;/script&gt; Works"));
+        assert!(html.contains("U&lt;1&gt;"));
+        assert!(!html.contains("U<1>"));
+        assert!(html.contains("P&amp;&lt;b&gt;"));
+        assert!(html.contains("so2: cems &lt;x&gt;"));
+        assert!(html.contains("A&quot;1"));
+        assert!(html.contains("F&amp;1"));
+    }
+
+    #[test]
+    fn names_every_unit_and_program_with_charts_and_the_caution() {
+        let html = annual(&report(
+            vec![unit("K1", false), unit("K2", true)],
+            vec![program("SO2-A"), program("NOX-O")],
+        ));
+        for id in ["K1", "K2", "SO2-A", "NOX-O"] {
+            assert!(html.contains(&format!(">{id}")), "{id} not named");
+        }
+        // Two monthly charts, one profile, one holdings chart per program.
+        assert_eq!(html.matches("<svg").count(), 5);
+        // The caution as written, apostrophe and all.
+        assert!(html.contains(crate::report::CAUTION));
+        assert!(html.contains(
+            "data-figure=\"units.K2.daily_profile.substituted_hours.1\" data-value=\"3\""
+        ));
+        assert!(html.contains("data-figure=\"programs.SO2-A.shortfall\" data-value=\"3\""));
+        // Absent stays absent: a dash, never a zero.
+        assert!(html
+            .contains("data-figure=\"units.K1.nox_tons\" data-value=\"\" title=\"not tracked\">—"));
+        // The tons shown are rounded for reading; the value is the model's.
+        assert!(html.contains("data-figure=\"units.K1.so2_tons\" data-value=\"1234.56\">1,234.6<"));
+    }
+
+    #[test]
+    fn without_hourly_data_there_is_no_profile_and_no_programs_is_said() {
+        let html = annual(&report(vec![unit("K1", false)], vec![]));
+        assert!(!html.contains("id=\"monitor\""));
+        assert_eq!(html.matches("<svg").count(), 2);
+        assert!(html.contains("The site file names no allowance program."));
+    }
+
+    #[test]
+    fn nothing_is_loaded_from_anywhere() {
+        let html = annual(&report(vec![unit("K2", true)], vec![program("P")]));
+        for forbidden in [
+            "http:", "https:", "src=", "@import", "<script", "<link", "url(http",
+        ] {
+            assert!(!html.contains(forbidden), "{forbidden}");
+        }
+        assert!(html.contains("default-src 'none'"));
+        assert!(html.contains("@media print"));
+    }
+}

@@ -10,7 +10,9 @@ use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::{Decimal, RoundingStrategy};
 use std::fmt::Write;
 
-/// Escape text for HTML and SVG content and attribute values.
+/// Escape text for HTML and SVG content and for attribute values, which
+/// this module and `html` always quote with `"`. An apostrophe stays as it
+/// is, so that text such as the caution reads the same in the file.
 pub fn esc(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
     for c in s.chars() {
@@ -19,7 +21,6 @@ pub fn esc(s: &str) -> String {
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),
             '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
             c => out.push(c),
         }
     }
@@ -549,7 +550,7 @@ mod tests {
     fn escape_covers_markup_and_quotes() {
         assert_eq!(
             esc("<b a=\"x\">&'</b>"),
-            "&lt;b a=&quot;x&quot;&gt;&amp;&#39;&lt;/b&gt;"
+            "&lt;b a=&quot;x&quot;&gt;&amp;'&lt;/b&gt;"
         );
     }
 
