@@ -4,6 +4,7 @@
 //! command's help.
 
 use assert_cmd::Command;
+use chrono::Datelike;
 use clap::CommandFactory;
 use flueledger::cli::Cli;
 use flueledger::report::csv::{ANNUAL_COLUMNS, RECONCILE_COLUMNS};
@@ -339,4 +340,79 @@ fn every_command_help_shows_an_example() {
         missing.is_empty(),
         "no example in the help of: {missing:#?}"
     );
+}
+
+#[test]
+fn daily_profile_marks_the_demo_outages_on_their_days() {
+    let json: Value = serde_json::from_str(&flue(&[
+        "report", "annual", "--year", "2025", "--format", "json",
+    ]))
+    .unwrap();
+    let k2 = json["units"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|u| u["unit"] == "K2")
+        .unwrap();
+    let p = &k2["daily_profile"];
+    assert_eq!(p["first_day"], "2025-01-01");
+    let counts: Vec<u64> = p["substituted_hours"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c.as_u64().unwrap())
+        .collect();
+    let rates = p["so2_lb_per_mmbtu"].as_array().unwrap();
+    assert_eq!((counts.len(), rates.len()), (365, 365));
+    let day = |md: &str| {
+        let d = chrono::NaiveDate::parse_from_str(&format!("2025-{md}"), "%Y-%m-%d").unwrap();
+        d.ordinal0() as usize
+    };
+    // The monitor outages of src/cli/demo_hourly.rs, hours per day: SO2
+    // Jan 12 06-09, Feb 3 10-14, Jun 17 00 to Jun 18 05; flow Aug 8 13-22,
+    // Dec 5 00 to Dec 6 11; O2 Oct 2 01-04 (the NOx rate is substituted).
+    // The moisture gap of Nov 20 substitutes none of SO2, flow and NOx.
+    let expected = [
+        ("01-12", 4),
+        ("02-03", 5),
+        ("06-17", 24),
+        ("06-18", 6),
+        ("08-08", 10),
+        ("10-02", 4),
+        ("12-05", 24),
+        ("12-06", 12),
+    ];
+    for (d, c) in counts.iter().enumerate() {
+        let want = expected
+            .iter()
+            .find(|(md, _)| day(md) == d)
+            .map_or(0, |(_, c)| *c);
+        assert_eq!(*c, want, "day {d}");
+    }
+    // The demo's outages do not overlap, so the days add up to the year's counts.
+    let s = &k2["substituted_hours"];
+    let year: u64 = ["so2", "flow", "nox"]
+        .iter()
+        .map(|p| s[*p].as_u64().unwrap())
+        .sum();
+    assert_eq!(counts.iter().sum::<u64>(), year);
+    // No heat input during the planned outage (Mar 10 to 23): no rate.
+    for (d, r) in rates.iter().enumerate() {
+        assert_eq!(
+            r.is_null(),
+            (day("03-10")..=day("03-23")).contains(&d),
+            "day {d}"
+        );
+    }
+    // Each day's rate lies near the year's heat-input-weighted SO2 rate.
+    let annual = Decimal::from_str_exact(k2["so2_tons"].as_str().unwrap()).unwrap()
+        * Decimal::from(2000)
+        / Decimal::from_str_exact(k2["heat_input_mmbtu"].as_str().unwrap()).unwrap();
+    for r in rates.iter().filter_map(|r| r.as_str()) {
+        let r = Decimal::from_str_exact(r).unwrap();
+        assert!(
+            r > annual / Decimal::TWO && r < annual * Decimal::TWO,
+            "{r} vs {annual}"
+        );
+    }
 }
