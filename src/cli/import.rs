@@ -50,6 +50,11 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
     }
     let mut ledger = Ledger::open(ledger_path)?;
     let stamp = super::stamp();
+    let file = match cmd {
+        ImportCommand::Analyses(a) | ImportCommand::Fuel(a) | ImportCommand::Hourly(a) => &a.file,
+        ImportCommand::Allowances(a) => &a.file,
+    };
+    let spinner = super::progress::Spinner::start(format!("importing {}", file.display()));
     let (args, outcome): (&ImportArgs, Outcome) = match cmd {
         ImportCommand::Analyses(a) => (
             a,
@@ -75,6 +80,7 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
             )?,
         ),
     };
+    drop(spinner);
     println!("{}: {outcome}", args.file.display());
     Ok(())
 }

@@ -8,6 +8,7 @@ mod demo_hourly;
 mod explain;
 mod import;
 mod init;
+mod progress;
 mod report;
 mod site;
 
@@ -102,9 +103,14 @@ static QUIET: AtomicBool = AtomicBool::new(false);
 
 /// An informational line on stderr, silenced by `--quiet`.
 pub fn note(line: impl std::fmt::Display) {
-    if !QUIET.load(Ordering::Relaxed) {
+    if !quiet() {
         eprintln!("{line}");
     }
+}
+
+/// Whether `--quiet` was given.
+pub fn quiet() -> bool {
+    QUIET.load(Ordering::Relaxed)
 }
 
 pub fn run(cli: Cli) -> Outcome {
