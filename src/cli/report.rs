@@ -8,13 +8,14 @@ use std::path::{Path, PathBuf};
 pub enum ReportCommand {
     /// A facility's year: heat input and SO2, NOx and CO2 tons per unit, by quarter and ozone season.
     #[command(
-        after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv"
+        after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv\n  flue report annual --year 2025 --format html --out mc1-2025.html"
     )]
     Annual(AnnualArgs),
 }
 
 #[derive(Debug, Args)]
 pub struct AnnualArgs {
+    /// The calendar year to report.
     #[arg(long, value_parser = clap::value_parser!(i32).range(1900..=9999))]
     pub year: i32,
     #[arg(long, value_enum, default_value = "table")]

@@ -408,8 +408,8 @@ pub fn daily_profile(
     let max = rates.iter().flatten().map(|r| f(*r)).fold(0.0, f64::max);
     let axis = Axis::new(max);
     let y = |v: f64| top + plot_h - v / axis.top * plot_h;
-    let sub_max = substituted.iter().copied().max().unwrap_or(0).max(1);
-    let sub_axis = Axis::new(sub_max as f64);
+    // A day has 24 hours of local standard time: the strip's full height.
+    const HOURS_PER_DAY: f64 = 24.0;
     let mut s = String::new();
     let _ = write!(
         s,
@@ -489,12 +489,11 @@ pub fn daily_profile(
         );
     }
     // The strip of substituted hours per day.
-    let sy = |v: f64| strip_top + strip_h - v / sub_axis.top * strip_h;
+    let sy = |v: f64| strip_top + strip_h - v.min(HOURS_PER_DAY) / HOURS_PER_DAY * strip_h;
     let _ = write!(
         s,
-        "<text x=\"{left}\" y=\"{:.1}\" class=\"legend\">Hours with a substituted value, per day (0 to {})</text>",
-        strip_top - 6.0,
-        sub_axis.label(sub_axis.top)
+        "<text x=\"{left}\" y=\"{:.1}\" class=\"legend\">Hours with a substituted value, per day (full height: 24 h)</text>",
+        strip_top - 6.0
     );
     for (d, &count) in substituted.iter().enumerate() {
         if count > 0 {
