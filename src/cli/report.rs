@@ -11,6 +11,30 @@ pub enum ReportCommand {
         after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv"
     )]
     Annual(AnnualArgs),
+    /// One calendar quarter and the year to its end, per unit.
+    #[command(
+        after_help = "Examples:\n  flue report quarter --year 2025 --quarter 3\n  flue report quarter --year 2025 --quarter 2 --format csv"
+    )]
+    Quarter(QuarterArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct QuarterArgs {
+    #[arg(long, value_parser = clap::value_parser!(i32).range(1900..=9999))]
+    pub year: i32,
+    #[arg(long, value_parser = clap::value_parser!(u32).range(1..=4))]
+    pub quarter: u32,
+    #[arg(long, value_enum, default_value = "table")]
+    pub format: Format,
+    /// Write to this new file instead of stdout.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Replace the --out file if it exists.
+    #[arg(long)]
+    pub force: bool,
+    /// The facility, where the ledger holds more than one.
+    #[arg(long)]
+    pub facility: Option<String>,
 }
 
 #[derive(Debug, Args)]
@@ -31,12 +55,22 @@ pub struct AnnualArgs {
 }
 
 pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
-    let ReportCommand::Annual(args) = cmd;
     let ledger = Ledger::open(ledger_path)?;
-    let model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
-    super::emit(args.out.as_deref(), args.force, |w| {
-        report::render(&model, args.format, w)
-    })
+    match cmd {
+        ReportCommand::Annual(args) => {
+            let model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            super::emit(args.out.as_deref(), args.force, |w| {
+                report::render(&model, args.format, w)
+            })
+        }
+        ReportCommand::Quarter(args) => {
+            let annual = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            let model = report::model::quarter(&annual, args.quarter);
+            super::emit(args.out.as_deref(), args.force, |w| {
+                report::render_quarter(&model, args.format, w)
+            })
+        }
+    }
 }
 
 /// Compute one facility's annual report from the ledger.

@@ -9,7 +9,7 @@ use super::{ImportError, Outcome, Stamp};
 use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERRORS_SHOWN_MAX};
 use crate::decimal::{parse_fixed, FixedError};
 use crate::emissions::method::Method;
-use crate::ledger::{Ledger, NewBatch, Reads};
+use crate::ledger::{HourlyReads, Ledger, NewBatch, Reads};
 use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
 use chrono::{Datelike, NaiveDateTime};
 use rust_decimal::Decimal;
@@ -236,6 +236,8 @@ struct UnitState {
     unit_no: i64,
     /// Bit i set: reading i carried a value in this file.
     columns: u32,
+    /// The same for the unit's hours already in the ledger.
+    held_columns: u32,
     /// Line of each hour seen in this file, per year (0 = not seen).
     lines: HashMap<i32, Vec<u32>>,
     /// Years in which the ledger already holds hours of this unit.
@@ -250,6 +252,33 @@ pub fn import(
     stamp: &Stamp,
 ) -> Result<Outcome, ImportError> {
     import_named(ledger, path, &path.display().to_string(), correct, stamp)
+}
+
+/// A row giving a concentration on the other moisture basis than the
+/// unit's hours so far: the equations take one basis per unit.
+fn mixed_basis(row: &HourRow, seen: u32) -> Option<String> {
+    let pairs = [
+        (Reading::So2PpmWet, Reading::So2PpmDry),
+        (Reading::NoxPpmWet, Reading::NoxPpmDry),
+        (Reading::O2PctWet, Reading::O2PctDry),
+        (Reading::Co2PctWet, Reading::Co2PctDry),
+    ];
+    pairs.into_iter().find_map(|(wet, dry)| {
+        let (here, other) = if row.readings[wet.index()].is_some() {
+            (wet, dry)
+        } else if row.readings[dry.index()].is_some() {
+            (dry, wet)
+        } else {
+            return None;
+        };
+        (seen & (1 << other.index()) != 0).then(|| {
+            format!(
+                "{} given, but the unit's other hours use {}; give one moisture basis per unit",
+                here.column(),
+                other.column()
+            )
+        })
+    })
 }
 
 /// Rows handed from the parsing thread to the writing one at a time.
@@ -403,6 +432,15 @@ pub fn import_named(
                         Some(true) => Ok(UnitState {
                             unit_no: tx.hourly_unit_no(&unit)?,
                             columns: 0,
+                            held_columns: tx
+                                .hourly_present(&unit)?
+                                .map(|p| {
+                                    p.iter()
+                                        .enumerate()
+                                        .filter(|(_, &on)| on)
+                                        .fold(0u32, |m, (i, _)| m | 1 << i)
+                                })
+                                .unwrap_or(0),
                             lines: HashMap::new(),
                             held_years: HashMap::new(),
                         }),
@@ -466,6 +504,10 @@ pub fn import_named(
                             }
                         },
                     };
+                    if let Some(why) = mixed_basis(&row, state.columns | state.held_columns) {
+                        errors.push(RowError::line(line, format!("unit {unit}: {why}")));
+                        continue;
+                    }
                     if !errors.is_empty() {
                         // Once anything is refused nothing will be written: just keep checking.
                         continue;
