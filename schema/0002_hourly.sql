@@ -18,7 +18,7 @@ CREATE TABLE hourly_unit_columns (
     unit_no INTEGER NOT NULL REFERENCES hourly_units (unit_no),
     reading TEXT    NOT NULL,
     PRIMARY KEY (unit_no, reading)
-) WITHOUT ROWID;
+);
 
 -- `batch_id` and `unit_no` carry no foreign-key clause: a per-row lookup
 -- halves the import rate. The import checks both inside its transaction

@@ -2,6 +2,7 @@
 //! Only this module prints.
 
 mod allowances;
+mod certify;
 mod demo;
 mod demo_hourly;
 mod explain;
@@ -9,6 +10,7 @@ mod import;
 mod init;
 mod report;
 mod site;
+mod verify;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -64,6 +66,16 @@ pub enum Command {
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
+    /// Recheck the whole ledger: file, schema, every journal entry and its rows; exit 1 if anything changed.
+    #[command(
+        after_help = "Examples:\n  flue verify\n  flue verify --receipt certification-2025.json"
+    )]
+    Verify(verify::VerifyArgs),
+    /// Certify a year: record its report digest and the journal head, and write a receipt.
+    #[command(
+        after_help = "Example:\n  flue certify --year 2025 --by \"A. Official\" --statement \"true, accurate and complete\" --out receipt-2025.json"
+    )]
+    Certify(certify::CertifyArgs),
 }
 
 /// What a command leaves for `main` to turn into an exit status.
@@ -78,6 +90,8 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
         Command::Explain(args) => explain::run(args, &cli.ledger),
+        Command::Verify(args) => verify::run(args, &cli.ledger),
+        Command::Certify(args) => certify::run(args, &cli.ledger),
     }
 }
 

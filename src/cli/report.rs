@@ -1,4 +1,5 @@
-use crate::ledger::{Ledger, Reads};
+use crate::ledger::{JournalReads, Ledger, Reads};
+use crate::report::model::{AmendmentView, CertificationView};
 use crate::report::{self, AnnualReport, Format};
 use anyhow::{anyhow, bail};
 use clap::{Args, Subcommand};
@@ -58,7 +59,8 @@ pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
     let ledger = Ledger::open(ledger_path)?;
     match cmd {
         ReportCommand::Annual(args) => {
-            let model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            let mut model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            model.certification = certification_view(&ledger, args.year)?;
             super::emit(args.out.as_deref(), args.force, |w| {
                 report::render(&model, args.format, w)
             })
@@ -101,4 +103,24 @@ pub fn annual_report(
     let mut model = report::model::annual(&site, version.version, year, &years);
     model.programs = super::allowances::program_reports(ledger, &site, year)?;
     Ok(model)
+}
+
+/// The year's certification, for the report to show.
+pub fn certification_view(ledger: &Ledger, year: i32) -> anyhow::Result<Option<CertificationView>> {
+    Ok(ledger.certification(year)?.map(|c| CertificationView {
+        amended: !c.amendments.is_empty(),
+        amendments: c
+            .amendments
+            .into_iter()
+            .map(|a| AmendmentView {
+                at: a.at,
+                by: a.by,
+                reason: a.reason,
+            })
+            .collect(),
+        by: c.by,
+        at: c.at,
+        statement: c.statement,
+        report_sha256: c.report_sha256,
+    }))
 }

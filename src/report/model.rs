@@ -28,7 +28,28 @@ pub struct AnnualReport {
     pub totals: Totals,
     /// Each program's reconciliation (filled once allowances are tracked).
     pub programs: Vec<serde_json::Value>,
+    /// Who certified the year, and its amendments; absent when not certified.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub certification: Option<CertificationView>,
     pub caution: &'static str,
+}
+
+/// A year's certification as a report shows it.
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct CertificationView {
+    pub by: String,
+    pub at: String,
+    pub statement: Option<String>,
+    pub report_sha256: String,
+    pub amended: bool,
+    pub amendments: Vec<AmendmentView>,
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct AmendmentView {
+    pub at: String,
+    pub by: String,
+    pub reason: String,
 }
 
 #[derive(Debug, Clone, Serialize, PartialEq)]
@@ -189,6 +210,7 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
             ozone_season: period(facility.ozone_season(), None, None),
         },
         programs: Vec::new(),
+        certification: None,
         caution: CAUTION,
     }
 }

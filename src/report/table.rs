@@ -54,6 +54,9 @@ pub fn annual(r: &AnnualReport) -> String {
         "{} ({}): annual emissions {} (site file version {}, rounding {})\n",
         r.facility_name, r.facility, r.year, r.site_version, r.rounding
     );
+    if let Some(c) = &r.certification {
+        let _ = writeln!(out, "{}\n", certification_line(c));
+    }
     let mut units = table(&[
         "Unit",
         "Kind",
@@ -255,4 +258,16 @@ pub fn quarter(r: &super::model::QuarterReport) -> String {
     );
     let _ = writeln!(out, "Caution: {}", r.caution);
     out
+}
+
+/// "certified by NAME on DATE", and "amended" with each amendment.
+pub fn certification_line(c: &crate::report::model::CertificationView) -> String {
+    let mut line = format!("Certified by {} on {}", c.by, c.at);
+    if c.amended {
+        line.push_str("; amended");
+        for a in &c.amendments {
+            line.push_str(&format!(" on {} by {} ({})", a.at, a.by, a.reason));
+        }
+    }
+    line
 }
