@@ -12,7 +12,6 @@ use crate::emissions::method::Method;
 use crate::ledger::{HourlyReads, Ledger, NewBatch, Reads};
 use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
 use chrono::{Datelike, NaiveDateTime};
-use rust_decimal::Decimal;
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 use std::io::{BufRead, BufReader, Read};
@@ -43,6 +42,8 @@ struct Layout {
     hour: usize,
     op_time: usize,
     readings: [Option<usize>; Reading::COUNT],
+    /// Each reading's upper bound as a fixed-point integer, exclusive or not.
+    limits: [Option<(i64, bool, &'static str)>; Reading::COUNT],
     names: Vec<String>,
 }
 
@@ -50,14 +51,22 @@ impl Layout {
     fn new(columns: &Columns) -> Layout {
         let idx = |n: &str| columns.index(n);
         let mut readings = [None; Reading::COUNT];
+        let mut limits = [None; Reading::COUNT];
         for r in Reading::ALL {
             readings[r.index()] = idx(r.column());
+            limits[r.index()] = r.upper_bound().map(|(bound, exclusive, why)| {
+                let mut scaled = bound;
+                scaled.rescale(READING_SCALE);
+                let limit = i64::try_from(scaled.mantissa()).expect("bounds are small");
+                (limit, exclusive, why)
+            });
         }
         Layout {
             unit: idx("unit").expect("required column"),
             hour: idx("hour").expect("required column"),
             op_time: idx("op_time").expect("required column"),
             readings,
+            limits,
             names: columns.names.clone(),
         }
     }
@@ -179,9 +188,8 @@ fn parse_record<'r>(
         }
         match parse_fixed(text, READING_SCALE) {
             Ok(v) => {
-                if let Some((bound, exclusive, why)) = r.upper_bound() {
-                    let d = Decimal::new(v, READING_SCALE);
-                    if d > bound || (exclusive && d == bound) {
+                if let Some((limit, exclusive, why)) = layout.limits[r.index()] {
+                    if v > limit || (exclusive && v == limit) {
                         fail(col, format!("{why}, found {}", shown(text)));
                         continue;
                     }
