@@ -11,6 +11,15 @@ CREATE TABLE hourly_units (
     unit    TEXT NOT NULL UNIQUE REFERENCES unit_owners (unit)
 );
 
+-- Which reading columns a unit's hours have ever carried a value in, kept
+-- by the import, so a report knows each unit's moisture bases without
+-- scanning its rows.
+CREATE TABLE hourly_unit_columns (
+    unit_no INTEGER NOT NULL REFERENCES hourly_units (unit_no),
+    reading TEXT    NOT NULL,
+    PRIMARY KEY (unit_no, reading)
+);
+
 -- `batch_id` and `unit_no` carry no foreign-key clause: a per-row lookup
 -- halves the import rate. The import checks both inside its transaction
 -- (the batch row is written last, with the id reserved at the start).
@@ -52,6 +61,10 @@ CREATE TRIGGER hourly_units_append_only_u BEFORE UPDATE ON hourly_units
     BEGIN SELECT RAISE(ABORT, 'hourly_units is append-only'); END;
 CREATE TRIGGER hourly_units_append_only_d BEFORE DELETE ON hourly_units
     BEGIN SELECT RAISE(ABORT, 'hourly_units is append-only'); END;
+CREATE TRIGGER hourly_unit_columns_append_only_u BEFORE UPDATE ON hourly_unit_columns
+    BEGIN SELECT RAISE(ABORT, 'hourly_unit_columns is append-only'); END;
+CREATE TRIGGER hourly_unit_columns_append_only_d BEFORE DELETE ON hourly_unit_columns
+    BEGIN SELECT RAISE(ABORT, 'hourly_unit_columns is append-only'); END;
 CREATE TRIGGER hourly_corrections_append_only_u BEFORE UPDATE ON hourly_corrections
     BEGIN SELECT RAISE(ABORT, 'hourly_corrections is append-only'); END;
 CREATE TRIGGER hourly_corrections_append_only_d BEFORE DELETE ON hourly_corrections

@@ -50,15 +50,78 @@ pub fn facility_years<'a>(
                 .expect("midnight"),
         )
     });
-    for unit_year in years.iter_mut() {
-        if let Some(result) =
-            hourly_year(r, unit_year.unit, site.facility.rounding, year, hour_limit)
-                .map_err(fail)?
-        {
+    let units: Vec<&Unit> = years.iter().map(|y| y.unit).collect();
+    let results = hourly_years(r, &units, site.facility.rounding, year, hour_limit)?;
+    for (unit_year, result) in years.iter_mut().zip(results) {
+        if let Some(result) = result.map_err(fail)? {
             unit_year.add_hourly(result);
         }
     }
     Ok(years)
+}
+
+/// Most threads a report uses for CEMS units; each reads with its own connection.
+const REPORT_THREADS_MAX: usize = 4;
+
+/// Every unit's hourly year, in the order given. Units are independent, so
+/// where the ledger file can be opened again they run side by side, one
+/// connection per thread; inside a write transaction they run in turn.
+fn hourly_years(
+    r: &(impl Reads + ?Sized),
+    units: &[&Unit],
+    rounding: Rounding,
+    year: i32,
+    hour_limit: Option<i64>,
+) -> Result<Vec<Result<Option<HourlyResult>, String>>, LedgerError> {
+    let hourly: Vec<usize> = (0..units.len())
+        .filter(|&i| {
+            units[i]
+                .methods
+                .iter()
+                .any(|m| units[i].from_hourly(&m.method))
+        })
+        .collect();
+    let threads = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .min(REPORT_THREADS_MAX)
+        .min(hourly.len());
+    let mut out: Vec<Result<Option<HourlyResult>, String>> =
+        (0..units.len()).map(|_| Ok(None)).collect();
+    let (Some(path), true) = (r.file(), threads > 1) else {
+        for &i in &hourly {
+            out[i] = hourly_year(r, units[i], rounding, year, hour_limit);
+        }
+        return Ok(out);
+    };
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let done = std::sync::Mutex::new(Vec::new());
+    std::thread::scope(|scope| -> Result<(), LedgerError> {
+        let workers: Vec<_> = (0..threads)
+            .map(|_| {
+                scope.spawn(|| -> Result<(), LedgerError> {
+                    let ledger = crate::ledger::Ledger::open(path)?;
+                    loop {
+                        let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                        let Some(&i) = hourly.get(k) else {
+                            return Ok(());
+                        };
+                        let result = hourly_year(&ledger, units[i], rounding, year, hour_limit);
+                        done.lock()
+                            .expect("no worker panics while holding the lock")
+                            .push((i, result));
+                    }
+                })
+            })
+            .collect();
+        for w in workers {
+            w.join().expect("a report worker panicked")?;
+        }
+        Ok(())
+    })?;
+    for (i, result) in done.into_inner().expect("workers finished") {
+        out[i] = result;
+    }
+    Ok(out)
 }
 
 /// Stream a CEMS unit's stored hours through the hourly engine for one year.

@@ -239,6 +239,9 @@ impl<R: BufRead> Reader<R> {
         record.line = self.line;
         record.text.clear();
         record.bounds.clear();
+        if !self.raw.contains(&b'"') {
+            return self.split_plain(record).map(|()| true);
+        }
         let start_line = self.line;
         let mut pos = 0usize;
         let mut quoted = false;
@@ -310,6 +313,88 @@ impl<R: BufRead> Reader<R> {
                 _ => self.field.push(b),
             }
         }
+    }
+
+    /// The common case, a line without quotes: check it whole, then split
+    /// at the commas. Same rules and messages as the quoted path.
+    fn split_plain(&mut self, record: &mut Record) -> Result<(), RowError> {
+        let line = self.line;
+        let text = match std::str::from_utf8(&self.raw) {
+            Ok(t) => t,
+            Err(e) => {
+                let at = e.valid_up_to();
+                let column = self.raw[..at].iter().filter(|&&b| b == b',').count() + 1;
+                let start = self.raw[..at]
+                    .iter()
+                    .rposition(|&b| b == b',')
+                    .map_or(0, |p| p + 1);
+                return Err(RowError::at(
+                    line,
+                    column,
+                    &format!("#{column}"),
+                    format!("invalid UTF-8 at byte {} of the field", at - start),
+                ));
+            }
+        };
+        record.text.push_str(text);
+        let mut start = 0usize;
+        for (i, &b) in self.raw.iter().enumerate() {
+            if b == b',' {
+                record.bounds.push((start, i));
+                start = i + 1;
+            } else if b < 0x20 && b != b'\t' {
+                let column = record.bounds.len() + 1;
+                let c = char::from(b);
+                return Err(RowError::at(
+                    line,
+                    column,
+                    &format!("#{column}"),
+                    format!("control character {c:?} is not accepted"),
+                ));
+            } else if b == 0x7f {
+                let column = record.bounds.len() + 1;
+                return Err(RowError::at(
+                    line,
+                    column,
+                    &format!("#{column}"),
+                    "control character '\\u{7f}' is not accepted",
+                ));
+            }
+        }
+        record.bounds.push((start, self.raw.len()));
+        if record.bounds.len() > COLUMNS_MAX {
+            return Err(RowError::line(
+                line,
+                format!("more than {COLUMNS_MAX} columns"),
+            ));
+        }
+        if let Some((i, _)) = record
+            .bounds
+            .iter()
+            .enumerate()
+            .find(|(_, (a, b))| b - a > FIELD_BYTES_MAX)
+        {
+            return Err(RowError::at(
+                line,
+                i + 1,
+                &format!("#{}", i + 1),
+                format!("longer than {FIELD_BYTES_MAX} bytes"),
+            ));
+        }
+        // Non-ASCII control characters (C1) are refused as on the quoted path.
+        if !text.is_ascii() {
+            if let Some(c) = text.chars().find(|c| c.is_control() && *c != '\t') {
+                let before = &text[..text.find(c).expect("found")];
+                let column = before.matches(',').count() + 1;
+                return Err(RowError::at(
+                    line,
+                    column,
+                    &format!("#{column}"),
+                    format!("control character {c:?} is not accepted"),
+                ));
+            }
+        }
+        Ok(())
     }
 
     fn push_field(&mut self, record: &mut Record, line: usize) -> Result<(), RowError> {

@@ -7,6 +7,7 @@
 
 pub mod allowances;
 pub mod assemble;
+pub mod audit;
 pub mod cli;
 pub mod compute;
 pub mod csvread;

@@ -228,6 +228,22 @@ fn demo_report_renders_in_chromium_and_matches_the_json() {
     flue(dir, &["--quiet", "demo", "--dir", "plant"]);
     let ledger = dir.join("plant/flue.db");
     let ledger = ledger.to_str().unwrap();
+    // A certified year, so that the header shows who certified it.
+    flue(
+        dir,
+        &[
+            "--quiet",
+            "--ledger",
+            ledger,
+            "certify",
+            "--year",
+            "2025",
+            "--by",
+            "A. Official",
+            "--out",
+            "receipt.json",
+        ],
+    );
     flue(
         dir,
         &[
@@ -359,4 +375,10 @@ fn demo_report_renders_in_chromium_and_matches_the_json() {
         "only {checked_text} figures checked as shown"
     );
     assert!(dom.contains(json["caution"].as_str().unwrap()));
+    // The header names the certification and the journal head of the JSON.
+    assert!(dom.contains("data-certification=\"certified\""));
+    assert!(dom.contains("<strong>Certified</strong> by A. Official on 2026-03-02T09:00:00Z."));
+    assert!(dom.contains(json["certification"]["report_sha256"].as_str().unwrap()));
+    let head = json["journal"]["head_sha256"].as_str().unwrap();
+    assert!(dom.contains(&format!("data-journal=\"{head}\"")));
 }

@@ -34,6 +34,17 @@ pub struct ImportArgs {
     /// Supersede rows held with other values; the old rows stay readable.
     #[arg(long, value_name = "REASON", value_parser = non_empty)]
     pub correct: Option<String>,
+    /// Allow the import to touch a certified year, recording an amendment.
+    #[arg(long, requires = "correct")]
+    pub amend: bool,
+}
+
+pub(super) fn non_empty_name(s: &str) -> Result<String, String> {
+    if s.trim().is_empty() {
+        Err("a name is needed".into())
+    } else {
+        Ok(s.to_string())
+    }
 }
 
 fn non_empty(s: &str) -> Result<String, String> {
@@ -50,6 +61,13 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
     }
     let mut ledger = Ledger::open(ledger_path)?;
     let stamp = super::stamp();
+    let amend = match cmd {
+        ImportCommand::Analyses(a) | ImportCommand::Fuel(a) | ImportCommand::Hourly(a) => {
+            a.correct.clone().filter(|_| a.amend)
+        }
+        ImportCommand::Allowances(_) => None,
+    };
+    ledger.set_amend(amend);
     let file = match cmd {
         ImportCommand::Analyses(a) | ImportCommand::Fuel(a) | ImportCommand::Hourly(a) => &a.file,
         ImportCommand::Allowances(a) => &a.file,

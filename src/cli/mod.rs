@@ -2,6 +2,7 @@
 //! Only this module prints.
 
 mod allowances;
+mod certify;
 mod completions;
 mod demo;
 mod demo_hourly;
@@ -11,6 +12,7 @@ mod init;
 mod progress;
 mod report;
 mod site;
+mod verify;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -85,6 +87,16 @@ pub enum Command {
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
+    /// Recheck the whole ledger: file, schema, every journal entry and its rows; exit 1 if anything changed.
+    #[command(
+        after_help = "Examples:\n  flue verify\n  flue verify --receipt certification-2025.json"
+    )]
+    Verify(verify::VerifyArgs),
+    /// Certify a year: record its report digest and the journal head, and write a receipt.
+    #[command(
+        after_help = "Example:\n  flue certify --year 2025 --by \"A. Official\" --statement \"true, accurate and complete\" --out receipt-2025.json"
+    )]
+    Certify(certify::CertifyArgs),
     /// Print a completion script for a shell.
     #[command(
         after_help = "Examples:\n  flue completions bash > ~/.local/share/bash-completion/completions/flue\n  flue completions zsh > ~/.zfunc/_flue\n  flue completions fish > ~/.config/fish/completions/flue.fish"
@@ -123,6 +135,8 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
         Command::Explain(args) => explain::run(args, &cli.ledger),
+        Command::Verify(args) => verify::run(args, &cli.ledger),
+        Command::Certify(args) => certify::run(args, &cli.ledger),
         Command::Completions(args) => completions::completions(args),
         Command::Manpage => completions::manpage(),
     }

@@ -1,4 +1,5 @@
-use crate::ledger::{Ledger, Reads};
+use crate::ledger::{JournalReads, Ledger, Reads};
+use crate::report::model::{AmendmentView, CertificationView, JournalView};
 use crate::report::{self, AnnualReport, Format};
 use anyhow::{anyhow, bail};
 use clap::{Args, Subcommand};
@@ -11,6 +12,30 @@ pub enum ReportCommand {
         after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv\n  flue report annual --year 2025 --format html --out mc1-2025.html"
     )]
     Annual(AnnualArgs),
+    /// One calendar quarter and the year to its end, per unit.
+    #[command(
+        after_help = "Examples:\n  flue report quarter --year 2025 --quarter 3\n  flue report quarter --year 2025 --quarter 2 --format csv"
+    )]
+    Quarter(QuarterArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct QuarterArgs {
+    #[arg(long, value_parser = clap::value_parser!(i32).range(1900..=9999))]
+    pub year: i32,
+    #[arg(long, value_parser = clap::value_parser!(u32).range(1..=4))]
+    pub quarter: u32,
+    #[arg(long, value_enum, default_value = "table")]
+    pub format: Format,
+    /// Write to this new file instead of stdout.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Replace the --out file if it exists.
+    #[arg(long)]
+    pub force: bool,
+    /// The facility, where the ledger holds more than one.
+    #[arg(long)]
+    pub facility: Option<String>,
 }
 
 #[derive(Debug, Args)]
@@ -32,12 +57,28 @@ pub struct AnnualArgs {
 }
 
 pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
-    let ReportCommand::Annual(args) = cmd;
     let ledger = Ledger::open(ledger_path)?;
-    let model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
-    super::emit(args.out.as_deref(), args.force, |w| {
-        report::render(&model, args.format, w)
-    })
+    match cmd {
+        ReportCommand::Annual(args) => {
+            let mut model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            model.certification = certification_view(&ledger, args.year)?;
+            let (entries, head_sha256) = ledger.journal_head()?;
+            model.journal = Some(JournalView {
+                entries,
+                head_sha256,
+            });
+            super::emit(args.out.as_deref(), args.force, |w| {
+                report::render(&model, args.format, w)
+            })
+        }
+        ReportCommand::Quarter(args) => {
+            let annual = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            let model = report::model::quarter(&annual, args.quarter);
+            super::emit(args.out.as_deref(), args.force, |w| {
+                report::render_quarter(&model, args.format, w)
+            })
+        }
+    }
 }
 
 /// Compute one facility's annual report from the ledger.
@@ -68,4 +109,24 @@ pub fn annual_report(
     let mut model = report::model::annual(&site, version.version, year, &years);
     model.programs = super::allowances::program_reports(ledger, &site, year)?;
     Ok(model)
+}
+
+/// The year's certification, for the report to show.
+pub fn certification_view(ledger: &Ledger, year: i32) -> anyhow::Result<Option<CertificationView>> {
+    Ok(ledger.certification(year)?.map(|c| CertificationView {
+        amended: !c.amendments.is_empty(),
+        amendments: c
+            .amendments
+            .into_iter()
+            .map(|a| AmendmentView {
+                at: a.at,
+                by: a.by,
+                reason: a.reason,
+            })
+            .collect(),
+        by: c.by,
+        at: c.at,
+        statement: c.statement,
+        report_sha256: c.report_sha256,
+    }))
 }

@@ -9,10 +9,9 @@ use super::{ImportError, Outcome, Stamp};
 use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERRORS_SHOWN_MAX};
 use crate::decimal::{parse_fixed, FixedError};
 use crate::emissions::method::Method;
-use crate::ledger::{Ledger, NewBatch, Reads};
+use crate::ledger::{HourlyReads, Ledger, NewBatch, Reads};
 use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
 use chrono::{Datelike, NaiveDateTime};
-use rust_decimal::Decimal;
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 use std::io::{BufRead, BufReader, Read};
@@ -43,6 +42,8 @@ struct Layout {
     hour: usize,
     op_time: usize,
     readings: [Option<usize>; Reading::COUNT],
+    /// Each reading's upper bound as a fixed-point integer, exclusive or not.
+    limits: [Option<(i64, bool, &'static str)>; Reading::COUNT],
     names: Vec<String>,
 }
 
@@ -50,14 +51,22 @@ impl Layout {
     fn new(columns: &Columns) -> Layout {
         let idx = |n: &str| columns.index(n);
         let mut readings = [None; Reading::COUNT];
+        let mut limits = [None; Reading::COUNT];
         for r in Reading::ALL {
             readings[r.index()] = idx(r.column());
+            limits[r.index()] = r.upper_bound().map(|(bound, exclusive, why)| {
+                let mut scaled = bound;
+                scaled.rescale(READING_SCALE);
+                let limit = i64::try_from(scaled.mantissa()).expect("bounds are small");
+                (limit, exclusive, why)
+            });
         }
         Layout {
             unit: idx("unit").expect("required column"),
             hour: idx("hour").expect("required column"),
             op_time: idx("op_time").expect("required column"),
             readings,
+            limits,
             names: columns.names.clone(),
         }
     }
@@ -179,9 +188,8 @@ fn parse_record<'r>(
         }
         match parse_fixed(text, READING_SCALE) {
             Ok(v) => {
-                if let Some((bound, exclusive, why)) = r.upper_bound() {
-                    let d = Decimal::new(v, READING_SCALE);
-                    if d > bound || (exclusive && d == bound) {
+                if let Some((limit, exclusive, why)) = layout.limits[r.index()] {
+                    if v > limit || (exclusive && v == limit) {
                         fail(col, format!("{why}, found {}", shown(text)));
                         continue;
                     }
@@ -234,6 +242,10 @@ fn parse_record<'r>(
 /// What the import knows of each unit named in the file.
 struct UnitState {
     unit_no: i64,
+    /// Bit i set: reading i carried a value in this file.
+    columns: u32,
+    /// The same for the unit's hours already in the ledger.
+    held_columns: u32,
     /// Line of each hour seen in this file, per year (0 = not seen).
     lines: HashMap<i32, Vec<u32>>,
     /// Years in which the ledger already holds hours of this unit.
@@ -248,6 +260,116 @@ pub fn import(
     stamp: &Stamp,
 ) -> Result<Outcome, ImportError> {
     import_named(ledger, path, &path.display().to_string(), correct, stamp)
+}
+
+/// A row giving a concentration on the other moisture basis than the
+/// unit's hours so far: the equations take one basis per unit.
+fn mixed_basis(row: &HourRow, seen: u32) -> Option<String> {
+    let pairs = [
+        (Reading::So2PpmWet, Reading::So2PpmDry),
+        (Reading::NoxPpmWet, Reading::NoxPpmDry),
+        (Reading::O2PctWet, Reading::O2PctDry),
+        (Reading::Co2PctWet, Reading::Co2PctDry),
+    ];
+    pairs.into_iter().find_map(|(wet, dry)| {
+        let (here, other) = if row.readings[wet.index()].is_some() {
+            (wet, dry)
+        } else if row.readings[dry.index()].is_some() {
+            (dry, wet)
+        } else {
+            return None;
+        };
+        (seen & (1 << other.index()) != 0).then(|| {
+            format!(
+                "{} given, but the unit's other hours use {}; give one moisture basis per unit",
+                here.column(),
+                other.column()
+            )
+        })
+    })
+}
+
+/// Rows handed from the parsing thread to the writing one at a time.
+const CHUNK_ROWS: usize = 4096;
+/// Chunks in flight between the threads: bounds memory whatever the file size.
+const CHUNKS_IN_FLIGHT: usize = 4;
+
+/// One parsed row: its line, the file's index of its unit, its year.
+struct Parsed {
+    line: usize,
+    unit: usize,
+    year: i32,
+    row: HourRow,
+}
+
+/// What the parsing thread sends: rows, units first seen, and row errors.
+#[derive(Default)]
+struct Chunk {
+    rows: Vec<Parsed>,
+    new_units: Vec<String>,
+    errors: Vec<RowError>,
+}
+
+/// Parse every record after the header, sending chunks as they fill.
+/// Runs on its own thread, so parsing overlaps the inserts (2 cores).
+fn parse_records<R: BufRead>(
+    mut reader: Reader<R>,
+    layout: &Layout,
+    out: std::sync::mpsc::SyncSender<Chunk>,
+) {
+    let mut record = Record::default();
+    let mut names: HashMap<String, usize> = HashMap::new();
+    let mut chunk = Chunk::default();
+    let mut scratch = Errors {
+        kept: Vec::new(),
+        omitted: 0,
+    };
+    loop {
+        match reader.next_into(&mut record) {
+            Ok(false) => break,
+            Ok(true) => {}
+            Err(e) => {
+                // A broken quote or an oversized record leaves no safe place to resume.
+                chunk.errors.push(e);
+                break;
+            }
+        }
+        if record.len() != layout.names.len() {
+            chunk.errors.push(RowError::line(
+                record.line,
+                format!(
+                    "expected {} fields, found {}",
+                    layout.names.len(),
+                    record.len()
+                ),
+            ));
+            continue;
+        }
+        let parsed = parse_record(layout, &record, &mut scratch);
+        chunk.errors.append(&mut scratch.kept);
+        let Some((unit, year, row)) = parsed else {
+            continue;
+        };
+        let index = match names.get(unit) {
+            Some(&i) => i,
+            None => {
+                let i = names.len();
+                names.insert(unit.to_string(), i);
+                chunk.new_units.push(unit.to_string());
+                i
+            }
+        };
+        chunk.rows.push(Parsed {
+            line: record.line,
+            unit: index,
+            year,
+            row,
+        });
+        if chunk.rows.len() == CHUNK_ROWS && out.send(std::mem::take(&mut chunk)).is_err() {
+            return; // The writer stopped: nothing more is wanted.
+        }
+    }
+    let _ = out.send(chunk);
 }
 
 /// Import an hourly file, naming it `name` in messages and in the ledger.
@@ -295,125 +417,141 @@ pub fn import_named(
         let layout = Layout::new(&columns);
         let batch_id = tx.next_batch_id()?;
         let mut insert = tx.hour_inserter()?;
-        let mut units: HashMap<String, UnitState> = HashMap::new();
+        // Per unit index of the file: its state, or why its rows are refused.
+        let mut units: Vec<Result<UnitState, String>> = Vec::new();
+        let mut unit_names: Vec<String> = Vec::new();
         let mut done = Outcome::default();
-        loop {
-            match reader.next_into(&mut record) {
-                Ok(false) => break,
-                Ok(true) => {}
-                Err(e) => {
+        let (send, receive) = std::sync::mpsc::sync_channel::<Chunk>(CHUNKS_IN_FLIGHT);
+        let written: Result<(), ImportError> = std::thread::scope(|scope| {
+            // Owned here, so an early return drops it and the parser stops.
+            let receive = receive;
+            let layout = &layout;
+            scope.spawn(move || parse_records(reader, layout, send));
+            for chunk in receive.iter() {
+                for e in chunk.errors {
                     errors.push(e);
-                    break;
                 }
-            }
-            if record.len() != layout.names.len() {
-                errors.push(RowError::line(
-                    record.line,
-                    format!("expected {} fields, found {}", layout.names.len(), record.len()),
-                ));
-                continue;
-            }
-            let Some((unit, year, row)) = parse_record(&layout, &record, &mut errors) else { continue };
-            let line = record.line;
-            match cems_units.get(unit) {
-                None => {
-                    errors.push(RowError::at(
-                        line,
-                        layout.unit + 1,
-                        "unit",
-                        format!("unknown unit {} (not in any site file)", shown(unit)),
-                    ));
-                    continue;
+                for unit in chunk.new_units {
+                    let state = match cems_units.get(unit.as_str()) {
+                        None => Err(format!("unknown unit {} (not in any site file)", shown(&unit))),
+                        Some(false) => Err(format!(
+                            "unit {unit} has no cems method in its site file, so its hourly data would not be used"
+                        )),
+                        Some(true) => Ok(UnitState {
+                            unit_no: tx.hourly_unit_no(&unit)?,
+                            columns: 0,
+                            held_columns: tx
+                                .hourly_present(&unit)?
+                                .map(|p| {
+                                    p.iter()
+                                        .enumerate()
+                                        .filter(|(_, &on)| on)
+                                        .fold(0u32, |m, (i, _)| m | 1 << i)
+                                })
+                                .unwrap_or(0),
+                            lines: HashMap::new(),
+                            held_years: HashMap::new(),
+                        }),
+                    };
+                    units.push(state);
+                    unit_names.push(unit);
                 }
-                Some(false) => {
-                    errors.push(RowError::at(
-                        line,
-                        layout.unit + 1,
-                        "unit",
-                        format!("unit {unit} has no cems method in its site file, so its hourly data would not be used"),
-                    ));
-                    continue;
-                }
-                Some(true) => {}
-            }
-            let year_start = hour_index(
-                chrono::NaiveDate::from_ymd_opt(year, 1, 1)
-                    .expect("valid year")
-                    .and_hms_opt(0, 0, 0)
-                    .expect("midnight"),
-            );
-            if !units.contains_key(unit) {
-                let fresh = UnitState {
-                    unit_no: tx.hourly_unit_no(unit)?,
-                    lines: HashMap::new(),
-                    held_years: HashMap::new(),
-                };
-                units.insert(unit.to_string(), fresh);
-            }
-            let state = units.get_mut(unit).expect("inserted above");
-            let slot = &mut state
-                .lines
-                .entry(year)
-                .or_insert_with(|| vec![0; HOURS_PER_YEAR_MAX])[(row.hour - year_start) as usize];
-            if *slot != 0 {
-                errors.push(RowError::line(
-                    line,
-                    format!("unit {unit} hour {} appears twice in this file, on lines {} and {line}", hour_label(row.hour), *slot),
-                ));
-                continue;
-            }
-            *slot = u32::try_from(line).unwrap_or(u32::MAX);
-            let held_year = match state.held_years.get(&year) {
-                Some(h) => *h,
-                None => {
-                    let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
-                    state.held_years.insert(year, h);
-                    h
-                }
-            };
-            let held = if held_year { tx.current_hour(state.unit_no, row.hour)? } else { None };
-            let corrects = match held {
-                None => None,
-                Some((held_id, held_row)) => match row.first_difference(&held_row) {
-                    None => {
-                        done.present += 1;
-                        continue;
-                    }
-                    Some(_) if correct.is_some() => Some(held_id),
-                    Some((field, was, now)) => {
+                for Parsed { line, unit: index, year, row } in chunk.rows {
+                    let unit = unit_names[index].as_str();
+                    let state = match &mut units[index] {
+                        Ok(state) => state,
+                        Err(why) => {
+                            errors.push(RowError::at(line, layout.unit + 1, "unit", why.clone()));
+                            continue;
+                        }
+                    };
+                    let year_start = crate::compute::hourly::year_start_hour(year);
+                    let slot = &mut state
+                        .lines
+                        .entry(year)
+                        .or_insert_with(|| vec![0; HOURS_PER_YEAR_MAX])[(row.hour - year_start) as usize];
+                    if *slot != 0 {
                         errors.push(RowError::line(
                             line,
                             format!(
-                                "unit {unit} hour {} is already held with other values (field {field}: held {was}, here {now}); \
-                                 to supersede it, import with --correct REASON",
-                                hour_label(row.hour)
+                                "unit {unit} hour {} appears twice in this file, on lines {} and {line}",
+                                hour_label(row.hour),
+                                *slot
                             ),
                         ));
                         continue;
                     }
-                },
-            };
-            if !errors.is_empty() {
-                // Once anything is refused nothing will be written: just keep checking.
-                continue;
-            }
-            let id = insert.insert(batch_id, line, state.unit_no, &row)?;
-            match corrects {
-                Some(old) => {
-                    tx.insert_hour_correction(id, old, correct.expect("checked"))?;
-                    done.corrected += 1;
+                    *slot = u32::try_from(line).unwrap_or(u32::MAX);
+                    let held_year = match state.held_years.get(&year) {
+                        Some(h) => *h,
+                        None => {
+                            let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
+                            state.held_years.insert(year, h);
+                            h
+                        }
+                    };
+                    let held = if held_year { tx.current_hour(state.unit_no, row.hour)? } else { None };
+                    let corrects = match held {
+                        None => None,
+                        Some((held_id, held_row)) => match row.first_difference(&held_row) {
+                            None => {
+                                done.present += 1;
+                                continue;
+                            }
+                            Some(_) if correct.is_some() => Some(held_id),
+                            Some((field, was, now)) => {
+                                errors.push(RowError::line(
+                                    line,
+                                    format!(
+                                        "unit {unit} hour {} is already held with other values (field {field}: held {was}, here {now}); \
+                                         to supersede it, import with --correct REASON",
+                                        hour_label(row.hour)
+                                    ),
+                                ));
+                                continue;
+                            }
+                        },
+                    };
+                    if let Some(why) = mixed_basis(&row, state.columns | state.held_columns) {
+                        errors.push(RowError::line(line, format!("unit {unit}: {why}")));
+                        continue;
+                    }
+                    if !errors.is_empty() {
+                        // Once anything is refused nothing will be written: just keep checking.
+                        continue;
+                    }
+                    for (i, v) in row.readings.iter().enumerate() {
+                        if v.is_some() {
+                            state.columns |= 1 << i;
+                        }
+                    }
+                    let id = insert.insert(batch_id, line, state.unit_no, &row)?;
+                    match corrects {
+                        Some(old) => {
+                            tx.insert_hour_correction(id, old, correct.expect("checked"))?;
+                            done.corrected += 1;
+                        }
+                        None => done.added += 1,
+                    }
                 }
-                None => done.added += 1,
             }
-        }
+            Ok(())
+        });
+        written?;
         if !errors.is_empty() {
             errors.kept.sort_by_key(|e| e.line);
             let mut fe = FileErrors::new(&name, errors.kept);
             fe.omitted = errors.omitted;
             return Err(fe.into());
         }
-        drop(reader);
         drop(insert);
+        for state in units.iter().flatten() {
+            for r in Reading::ALL {
+                if state.columns & (1 << r.index()) != 0 {
+                    tx.note_hourly_column(state.unit_no, r)?;
+                }
+            }
+        }
         // Read to the end so the digest covers the whole file.
         while !input.fill_buf().map_err(|e| ImportError::Read(format!("{name}: {e}")))?.is_empty() {
             let n = input.buffer().len();

@@ -88,6 +88,15 @@ impl Tx<'_> {
         })
     }
 
+    /// Record that a unit's hours carry values in `reading`.
+    pub fn note_hourly_column(&self, unit_no: i64, reading: Reading) -> Result<()> {
+        self.tx.execute(
+            "INSERT OR IGNORE INTO hourly_unit_columns (unit_no, reading) VALUES (?1, ?2)",
+            params![unit_no, reading.column()],
+        )?;
+        Ok(())
+    }
+
     pub fn insert_hour_correction(&self, id: i64, corrects_id: i64, reason: &str) -> Result<()> {
         self.tx.execute(
             "INSERT INTO hourly_corrections (id, corrects_id, reason) VALUES (?1, ?2, ?3)",
@@ -110,25 +119,31 @@ pub struct HourSource {
 pub trait HourlyReads: Reads {
     /// Which reading columns a unit's stored hours use; `None` without hours.
     fn hourly_present(&self, unit: &str) -> Result<Option<[bool; Reading::COUNT]>> {
-        let cols: Vec<String> = READING_COLUMNS
-            .split(", ")
-            .map(|c| format!("max({} IS NOT NULL)", c.trim()))
-            .collect();
-        let sql = format!(
-            "SELECT count(*), {} FROM hourly WHERE unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1)",
-            cols.join(", ")
-        );
-        Ok(self.conn().query_row(&sql, [unit], |r| {
-            let n: i64 = r.get(0)?;
-            if n == 0 {
-                return Ok(None);
-            }
-            let mut present = [false; Reading::COUNT];
-            for (i, p) in present.iter_mut().enumerate() {
-                *p = r.get::<_, Option<bool>>(1 + i)?.unwrap_or(false);
-            }
-            Ok(Some(present))
-        })?)
+        let mut stmt = self.conn().prepare(
+            "SELECT c.reading FROM hourly_unit_columns c JOIN hourly_units u ON u.unit_no = c.unit_no
+             WHERE u.unit = ?1",
+        )?;
+        let has_hours: bool = self.conn().query_row(
+            "SELECT EXISTS (SELECT 1 FROM hourly h JOIN hourly_units u ON u.unit_no = h.unit_no WHERE u.unit = ?1)",
+            [unit],
+            |r| r.get(0),
+        )?;
+        if !has_hours {
+            return Ok(None);
+        }
+        let mut present = [false; Reading::COUNT];
+        let mut rows = stmt.query([unit])?;
+        while let Some(r) = rows.next()? {
+            let name: String = r.get(0)?;
+            let reading = Reading::ALL
+                .into_iter()
+                .find(|x| x.column() == name)
+                .ok_or_else(|| {
+                    super::LedgerError::Damaged(format!("unknown hourly column {name:?}"))
+                })?;
+            present[reading.index()] = true;
+        }
+        Ok(Some(present))
     }
 
     /// Stream a unit's hours in force over `[from, to)`, in hour order.

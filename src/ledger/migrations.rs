@@ -8,6 +8,10 @@ pub const MIGRATIONS: &[(&str, &str)] = &[
         "0003_allowances",
         include_str!("../../schema/0003_allowances.sql"),
     ),
+    (
+        "0004_journal",
+        include_str!("../../schema/0004_journal.sql"),
+    ),
 ];
 
 /// Our own SQLite `application_id`: the ASCII bytes "FLUE". A file without

@@ -8,11 +8,15 @@
 
 mod allowances;
 mod hourly;
+mod journal;
 pub mod migrations;
 mod rows;
 
 pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
 pub use hourly::{HourSource, HourlyReads};
+pub use journal::{
+    schema_digest, Amendment, Certification, Certified, JournalReads, Problem, Verification,
+};
 
 use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
 use rusqlite::{config::DbConfig, Connection, ErrorCode, OpenFlags, TransactionBehavior};
@@ -21,6 +25,9 @@ use std::time::Duration;
 use thiserror::Error;
 
 pub use rows::{BatchSummary, NewBatch, Reads, SiteVersion};
+
+/// The schema version that added the journal (schema/0004_journal.sql).
+const JOURNAL_VERSION: i32 = 4;
 
 /// How long a command waits for another process's write lock (RELIABILITY.md R2).
 pub const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
@@ -41,6 +48,14 @@ pub enum LedgerError {
         found: i32,
         known: i32,
     },
+    #[error(
+        "{path} predates this flue's journal (schema version {found}, this flue knows {known}); run any writing command once to upgrade it"
+    )]
+    Older {
+        path: PathBuf,
+        found: i32,
+        known: i32,
+    },
     #[error("the ledger is locked by another process (waited {}s)", BUSY_TIMEOUT.as_secs())]
     Busy,
     #[error("the ledger is read-only: {0}")]
@@ -54,6 +69,12 @@ pub enum LedgerError {
         path: PathBuf,
         source: std::io::Error,
     },
+    #[error(
+        "year {year} is certified (by {by} on {at}); a change touching it needs --correct REASON --amend"
+    )]
+    Certified { year: i32, by: String, at: String },
+    #[error("year {year} is already certified (by {by} on {at}); a change to it is an amendment: import with --correct REASON --amend")]
+    AlreadyCertified { year: i32, by: String, at: String },
     #[error("ledger error: {0}")]
     Sqlite(rusqlite::Error),
 }
@@ -80,6 +101,8 @@ pub type Result<T> = std::result::Result<T, LedgerError>;
 pub struct Ledger {
     conn: Connection,
     path: PathBuf,
+    /// The reason a write may touch a certified year (`--correct R --amend`).
+    amend: Option<String>,
 }
 
 /// A write transaction. Dropped without `commit`, it rolls back.
@@ -148,7 +171,60 @@ impl Ledger {
         Ok(Ledger {
             conn,
             path: path.to_path_buf(),
+            amend: None,
         })
+    }
+
+    /// Open an existing ledger read-only, as `flue verify` does: nothing is
+    /// migrated or written (RELIABILITY.md R3).
+    pub fn open_read_only(path: &Path) -> Result<Ledger> {
+        if !path.is_file() {
+            return Err(LedgerError::NotFound(path.to_path_buf()));
+        }
+        let not_ours = |e: rusqlite::Error| match LedgerError::from(e) {
+            LedgerError::Damaged(why) => LedgerError::Damaged(why),
+            _ => LedgerError::NotALedger(path.to_path_buf()),
+        };
+        let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let conn = Connection::open_with_flags(path, flags)?;
+        conn.busy_timeout(BUSY_TIMEOUT)?;
+        conn.set_db_config(DbConfig::SQLITE_DBCONFIG_DEFENSIVE, true)?;
+        conn.set_db_config(DbConfig::SQLITE_DBCONFIG_TRUSTED_SCHEMA, false)?;
+        let app_id: i32 = conn
+            .query_row("PRAGMA application_id", [], |r| r.get(0))
+            .map_err(not_ours)?;
+        if app_id != APPLICATION_ID {
+            return Err(LedgerError::NotALedger(path.to_path_buf()));
+        }
+        let ledger = Ledger {
+            conn,
+            path: path.to_path_buf(),
+            amend: None,
+        };
+        let version = ledger
+            .user_version()
+            .map_err(|_| LedgerError::NotALedger(path.to_path_buf()))?;
+        if version > latest_version() {
+            return Err(LedgerError::Newer {
+                path: path.to_path_buf(),
+                found: version,
+                known: latest_version(),
+            });
+        }
+        if version < latest_version() {
+            return Err(LedgerError::Older {
+                path: path.to_path_buf(),
+                found: version,
+                known: latest_version(),
+            });
+        }
+        Ok(ledger)
+    }
+
+    /// Let the next writes touch a certified year, recording an amendment
+    /// with this reason (`--correct REASON --amend`).
+    pub fn set_amend(&mut self, reason: Option<String>) {
+        self.amend = reason;
     }
 
     fn user_version(&self) -> Result<i32> {
@@ -169,7 +245,13 @@ impl Ledger {
             "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {};",
             latest_version()
         ))?;
-        tx.commit()?;
+        let tx = Tx { tx };
+        if from > 0 && from < JOURNAL_VERSION {
+            // A ledger made before the journal: one entry covers what it holds.
+            let at = chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
+            tx.journal_existing(&at, "flue migration 0004_journal")?;
+        }
+        tx.tx.commit()?;
         Ok(())
     }
 
@@ -188,6 +270,8 @@ impl Ledger {
             .map_err(LedgerError::from)?;
         let tx = Tx { tx };
         let out = f(&tx)?;
+        // Every row the write added gets its journal entry in the same transaction.
+        tx.journal_pending(self.amend.as_deref())?;
         tx.tx.commit().map_err(LedgerError::from)?;
         Ok(out)
     }
@@ -258,6 +342,32 @@ mod tests {
             Err(LedgerError::NotFound(_))
         ));
         assert!(!dir.path().join("missing.db").exists());
+    }
+
+    #[test]
+    fn a_ledger_from_before_the_journal_upgrades_with_its_rows_journaled() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.db");
+        {
+            let conn = Connection::open(&path).unwrap();
+            for (_, sql) in &MIGRATIONS[..3] {
+                conn.execute_batch(sql).unwrap();
+            }
+            conn.execute_batch(&format!(
+                "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = 3;
+                 INSERT INTO import_batches VALUES (1,'fuel','f.csv',printf('%064d',0),0,0,0,'t','u',NULL);"
+            ))
+            .unwrap();
+        }
+        assert!(matches!(
+            Ledger::open_read_only(&path),
+            Err(LedgerError::Older { found: 3, .. })
+        ));
+        drop(Ledger::open(&path).unwrap());
+        let ledger = Ledger::open_read_only(&path).unwrap();
+        let v = ledger.verify().unwrap();
+        assert_eq!(v.problems, vec![]);
+        assert_eq!(v.entry_count, 1);
     }
 
     #[test]

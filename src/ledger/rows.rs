@@ -77,6 +77,12 @@ fn text_of(d: Option<Decimal>) -> Option<String> {
 pub trait Reads {
     fn conn(&self) -> &Connection;
 
+    /// The ledger file, where more connections may read it side by side
+    /// (`None` inside a write transaction, whose view must be used alone).
+    fn file(&self) -> Option<&std::path::Path> {
+        None
+    }
+
     /// The latest site version of every facility.
     fn latest_sites(&self) -> Result<Vec<SiteVersion>> {
         let mut stmt = self.conn().prepare(
@@ -243,6 +249,10 @@ fn stored<T>(r: &Row, value: T) -> Result<Stored<T>> {
 impl Reads for Ledger {
     fn conn(&self) -> &Connection {
         &self.conn
+    }
+
+    fn file(&self) -> Option<&std::path::Path> {
+        Some(&self.path)
     }
 }
 

@@ -250,6 +250,51 @@ pub fn reconcile(p: &Value, caution: &str) -> String {
     out
 }
 
+/// The quarterly report as CSV: one row per unit and period (quarter, ytd).
+pub fn quarter(r: &super::model::QuarterReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "scope,facility,year,unit,period,heat_input_mmbtu,so2_tons,nox_tons,co2_tons"
+    );
+    for (scope, u) in r
+        .units
+        .iter()
+        .map(|u| ("unit", u))
+        .chain(std::iter::once(("facility", &r.totals)))
+    {
+        let unit = if scope == "facility" {
+            ""
+        } else {
+            u.unit.as_str()
+        };
+        for (period, p) in [
+            (format!("Q{}", r.quarter), &u.quarter),
+            ("ytd".to_string(), &u.year_to_date),
+        ] {
+            let _ = writeln!(
+                out,
+                "{scope},{},{},{},{period},{},{},{},{}",
+                text_cell(&r.facility),
+                r.year,
+                text_cell(unit),
+                num(p.heat_input_mmbtu),
+                num(p.so2_tons),
+                num(p.nox_tons),
+                num(p.co2_tons)
+            );
+        }
+    }
+    let _ = writeln!(
+        out,
+        "note,{},{},{},,,,,",
+        text_cell(&r.facility),
+        r.year,
+        text_cell(r.caution)
+    );
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

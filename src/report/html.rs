@@ -12,7 +12,7 @@
 //! `programs.SO2-ANNUAL.shortfall`). This module formats; it computes no
 //! figure.
 
-use super::model::{AnnualReport, Period, UnitReport};
+use super::model::{AnnualReport, Period, QuarterReport, UnitReport};
 use super::svg::{self, esc, grouped, Bar, Series, Vintage};
 use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
@@ -49,6 +49,9 @@ dl.meta dt { color:var(--muted); font-size:7.5pt; text-transform:uppercase; lett
 dl.meta dd { margin:0; }
 .status { margin:8px 0 0; padding:5px 9px; font-size:9pt; border-left:4px solid var(--muted); background:var(--band); }
 .status.journal { border-left-color:var(--rule); color:var(--muted); margin-top:4px; }
+.status.certified { border-left-color:#2f6b45; background:#eef5ef; }
+.status.amended { border-left-color:#b7791f; background:#fbf3e4; }
+code.hash { font-size:7.5pt; word-break:break-all; }
 section { margin-top:16px; }
 section > h2 { font-size:13pt; border-bottom:1px solid var(--ink); padding-bottom:2px; margin-bottom:6px; }
 section > h2 .no { color:var(--accent); margin-right:.35em; }
@@ -161,27 +164,55 @@ fn unit_key(u: &UnitReport) -> String {
     format!("units.{}", u.unit)
 }
 
-/// The certification line of the header.
-///
-/// MERGE POINT (certification): the model carries no certification fields
-/// yet. When `AnnualReport` gains them (who certified, when, amended), render
-/// them here in place of this line; the `data-certification` attribute
-/// names the state for tests.
-fn certification(_r: &AnnualReport) -> String {
-    "<p class=\"status\" data-certification=\"unknown\"><strong>Certification:</strong> \
-this report does not carry the year's certification status. Check it in the ledger before \
-signing; a year certified and later amended must say so here.</p>"
-        .to_string()
+/// The certification line of the header: who certified the year, when,
+/// the digest of the report certified, and every amendment since.
+fn certification(r: &AnnualReport) -> String {
+    let Some(c) = &r.certification else {
+        return format!(
+            "<p class=\"status\" data-certification=\"none\"><strong>Not certified.</strong> \
+The ledger holds no certification of {}: these figures may still change \
+(<code>flue certify --year {} --by NAME</code> freezes the year).</p>",
+            r.year, r.year
+        );
+    };
+    let statement = c
+        .statement
+        .as_deref()
+        .map(|s| format!(" Statement: “{}”.", esc(s)))
+        .unwrap_or_default();
+    let mut out = format!(
+        "<p class=\"status certified{}\" data-certification=\"{}\"><strong>Certified</strong> by {} on {}.{statement} \
+Digest of the report certified (SHA-256): <code class=\"hash\">{}</code>.",
+        if c.amended { " amended" } else { "" },
+        if c.amended { "amended" } else { "certified" },
+        esc(&c.by),
+        esc(&c.at),
+        esc(&c.report_sha256),
+    );
+    for a in &c.amendments {
+        let _ = write!(
+            out,
+            "<br><strong>Amended</strong> on {} by {}: {}.",
+            esc(&a.at),
+            esc(&a.by),
+            esc(&a.reason)
+        );
+    }
+    out.push_str("</p>");
+    out
 }
 
-/// The journal line of the header.
-///
-/// MERGE POINT (audit journal): when the model carries the audit journal's
-/// head hash, show it here so a printed copy names the ledger state it
-/// came from.
-fn journal(_r: &AnnualReport) -> String {
-    "<p class=\"status journal\" data-journal=\"unknown\">Ledger journal head: not carried by this report.</p>"
-        .to_string()
+/// The journal line of the header: the ledger state the report came from.
+fn journal(r: &AnnualReport) -> String {
+    match &r.journal {
+        Some(j) => format!(
+            "<p class=\"status journal\" data-journal=\"{}\">Ledger journal at this report: {} entries, head <code class=\"hash\">{}</code> (<code>flue verify</code> rechecks it).</p>",
+            esc(&j.head_sha256),
+            j.entries,
+            esc(&j.head_sha256)
+        ),
+        None => String::new(),
+    }
 }
 
 fn header(r: &AnnualReport, out: &mut String) {
@@ -770,22 +801,96 @@ fn closing(r: &AnnualReport, out: &mut String) {
     );
 }
 
-/// The annual report as one HTML document.
-pub fn annual(r: &AnnualReport) -> String {
-    let mut out = String::with_capacity(64 * 1024);
-    let _ = write!(
-        out,
+/// The document's head: no resource may load (CSP), the styles inline.
+fn open_document(title: &str) -> String {
+    format!(
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
 <meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'\">\
 <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
 <meta name=\"generator\" content=\"flue {}\">\
-<title>Annual emissions statement: {} ({}), {}</title><style>{STYLE}</style></head>\
+<title>{}</title><style>{STYLE}</style></head>\
 <body><main class=\"sheet\">",
         env!("CARGO_PKG_VERSION"),
+        esc(title)
+    )
+}
+
+/// One calendar quarter and the year to its end, as a short document.
+pub fn quarter(r: &QuarterReport) -> String {
+    let mut out = open_document(&format!(
+        "Quarterly emissions statement: {} ({}), Q{} {}",
+        r.facility_name, r.facility, r.quarter, r.year
+    ));
+    let _ = write!(
+        out,
+        "<header class=\"title\"><div><div class=\"kicker\">Quarterly emissions statement</div>\
+<h1>{}</h1></div><div class=\"year\">Q{} {}</div></header>\
+<dl class=\"meta\"><div><dt>Facility</dt><dd data-facility=\"{id}\">{id}</dd></div>\
+<div><dt>Quarter</dt><dd>{}</dd></div><div><dt>Year to date</dt><dd>January 1 to the end of Q{}</dd></div></dl>",
+        esc(&r.facility_name),
+        r.quarter,
+        r.year,
+        QUARTER_SPANS.get(r.quarter as usize - 1).copied().unwrap_or(""),
+        r.quarter,
+        id = esc(&r.facility),
+    );
+    out.push_str(
+        "<section id=\"quarter\"><h2><span class=\"no\">1</span>Units</h2><table><thead><tr><th>Unit</th><th>Period</th>\
+<th class=\"num\">Heat input<br>MMBtu</th><th class=\"num\">SO2<br>tons</th><th class=\"num\">NOx<br>tons</th>\
+<th class=\"num\">CO2<br>tons</th></tr></thead><tbody>",
+    );
+    let rows = r
+        .units
+        .iter()
+        .map(|u| (u, format!("units.{}", u.unit), false))
+        .chain(std::iter::once((&r.totals, "totals".to_string(), true)));
+    for (u, key, total) in rows {
+        let class = if total { " class=\"total\"" } else { "" };
+        let name = if total {
+            "Facility".to_string()
+        } else {
+            esc(&u.unit)
+        };
+        let _ = write!(
+            out,
+            "<tr{class}><td>{name}</td><td>Q{}</td>{}</tr><tr{class}><td></td><td>Jan 1 to end of Q{}</td>{}</tr>",
+            r.quarter,
+            period_cells(&format!("{key}.quarter"), &u.quarter),
+            r.quarter,
+            period_cells(&format!("{key}.year_to_date"), &u.year_to_date),
+        );
+    }
+    let _ = write!(
+        out,
+        "</tbody></table><p class=\"note\">{ABSENT} = not tracked for the unit (no method in the site file), never zero. \
+Figures are rounded for reading; the JSON report keeps full precision.</p></section>\
+<section id=\"caution\"><h2><span class=\"no\">2</span>Caution</h2>\
+<div class=\"caution\" data-caution=\"\"><strong>Caution</strong>{}</div></section>\
+<footer><span>{} ({}) · Q{} {}</span><span>Prepared with flue {}</span></footer></main></body></html>",
+        esc(r.caution),
         esc(&r.facility_name),
         esc(&r.facility),
-        r.year
+        r.quarter,
+        r.year,
+        env!("CARGO_PKG_VERSION")
     );
+    out.push('\n');
+    out
+}
+
+const QUARTER_SPANS: [&str; 4] = [
+    "January 1 to March 31",
+    "April 1 to June 30",
+    "July 1 to September 30",
+    "October 1 to December 31",
+];
+
+/// The annual report as one HTML document.
+pub fn annual(r: &AnnualReport) -> String {
+    let mut out = open_document(&format!(
+        "Annual emissions statement: {} ({}), {}",
+        r.facility_name, r.facility, r.year
+    ));
     header(r, &mut out);
     totals(r, &mut out);
     units_table(r, &mut out);
@@ -860,6 +965,8 @@ mod tests {
                 ozone_season: period(None, None, dec!(2)),
             },
             programs,
+            certification: None,
+            journal: None,
             caution: crate::report::CAUTION,
         }
     }
@@ -917,6 +1024,78 @@ mod tests {
         assert!(!html.contains("id=\"monitor\""));
         assert_eq!(html.matches("<svg").count(), 2);
         assert!(html.contains("The site file names no allowance program."));
+    }
+
+    #[test]
+    fn header_states_certification_amendments_and_journal_head() {
+        let mut r = report(vec![unit("K1", false)], vec![]);
+        let html = annual(&r);
+        assert!(html.contains("data-certification=\"none\"><strong>Not certified.</strong>"));
+        assert!(!html.contains("data-journal"));
+        r.certification = Some(crate::report::model::CertificationView {
+            by: "A. <Official>".to_string(),
+            at: "2026-03-02T09:00:00Z".to_string(),
+            statement: Some("true & complete".to_string()),
+            report_sha256: "ab12".to_string(),
+            amended: true,
+            amendments: vec![crate::report::model::AmendmentView {
+                at: "2026-04-01T10:00:00Z".to_string(),
+                by: "B".to_string(),
+                reason: "meter <K1> re-read".to_string(),
+            }],
+        });
+        r.journal = Some(crate::report::model::JournalView {
+            entries: 7,
+            head_sha256: "cd34".to_string(),
+        });
+        let html = annual(&r);
+        assert!(html.contains("data-certification=\"amended\"><strong>Certified</strong> by A. &lt;Official&gt; on 2026-03-02T09:00:00Z. Statement: “true &amp; complete”."));
+        assert!(html.contains("<code class=\"hash\">ab12</code>"));
+        assert!(html.contains(
+            "<strong>Amended</strong> on 2026-04-01T10:00:00Z by B: meter &lt;K1&gt; re-read."
+        ));
+        assert!(html.contains("data-journal=\"cd34\">Ledger journal at this report: 7 entries"));
+    }
+
+    #[test]
+    fn quarter_document_tags_quarter_and_year_to_date() {
+        let p = |so2| Period {
+            quarter: None,
+            month: None,
+            heat_input_mmbtu: Some(dec!(10)),
+            so2_tons: Some(so2),
+            nox_tons: None,
+            co2_tons: None,
+        };
+        let q = QuarterReport {
+            format_version: 1,
+            facility: "F1".to_string(),
+            facility_name: "Mill <A>".to_string(),
+            year: 2025,
+            quarter: 2,
+            units: vec![crate::report::model::QuarterUnit {
+                unit: "B&2".to_string(),
+                quarter: p(dec!(1.25)),
+                year_to_date: p(dec!(3.75)),
+            }],
+            totals: crate::report::model::QuarterUnit {
+                unit: "facility".to_string(),
+                quarter: p(dec!(1.25)),
+                year_to_date: p(dec!(3.75)),
+            },
+            caution: crate::report::CAUTION,
+        };
+        let html = quarter(&q);
+        assert!(html.contains("Mill &lt;A&gt;"));
+        assert!(html.contains("April 1 to June 30"));
+        assert!(html
+            .contains("data-figure=\"units.B&amp;2.quarter.so2_tons\" data-value=\"1.25\">1.3<"));
+        assert!(
+            html.contains("data-figure=\"totals.year_to_date.so2_tons\" data-value=\"3.75\">3.8<")
+        );
+        assert!(html.contains("data-figure=\"totals.quarter.nox_tons\" data-value=\"\""));
+        assert!(html.contains(crate::report::CAUTION));
+        assert!(!html.contains("src="));
     }
 
     #[test]

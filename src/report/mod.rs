@@ -35,3 +35,20 @@ pub fn render(
         Format::Html => out.write_all(html::annual(report).as_bytes()),
     }
 }
+
+/// Render a quarterly report in the chosen format.
+pub fn render_quarter(
+    report: &model::QuarterReport,
+    format: Format,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    match format {
+        Format::Table => out.write_all(table::quarter(report).as_bytes()),
+        Format::Json => {
+            serde_json::to_writer_pretty(&mut *out, report)?;
+            out.write_all(b"\n")
+        }
+        Format::Csv => out.write_all(csv::quarter(report).as_bytes()),
+        Format::Html => out.write_all(html::quarter(report).as_bytes()),
+    }
+}

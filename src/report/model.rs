@@ -29,7 +29,39 @@ pub struct AnnualReport {
     pub totals: Totals,
     /// Each program's reconciliation (filled once allowances are tracked).
     pub programs: Vec<serde_json::Value>,
+    /// Who certified the year, and its amendments; absent when not certified.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub certification: Option<CertificationView>,
+    /// The audit journal's head when the report was made, so that a printed
+    /// copy names the ledger state it came from; absent where not read.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub journal: Option<JournalView>,
     pub caution: &'static str,
+}
+
+/// The audit journal's head: entries so far and the last entry's hash.
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct JournalView {
+    pub entries: i64,
+    pub head_sha256: String,
+}
+
+/// A year's certification as a report shows it.
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct CertificationView {
+    pub by: String,
+    pub at: String,
+    pub statement: Option<String>,
+    pub report_sha256: String,
+    pub amended: bool,
+    pub amendments: Vec<AmendmentView>,
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct AmendmentView {
+    pub at: String,
+    pub by: String,
+    pub reason: String,
 }
 
 #[derive(Debug, Clone, Serialize, PartialEq)]
@@ -232,6 +264,84 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
             ozone_season: period(facility.ozone_season(), None, None),
         },
         programs: Vec::new(),
+        certification: None,
+        journal: None,
+        caution: CAUTION,
+    }
+}
+
+/// One quarter and the year to its end: `flue report quarter`.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct QuarterReport {
+    pub format_version: u32,
+    pub facility: String,
+    pub facility_name: String,
+    pub year: i32,
+    pub quarter: u32,
+    pub units: Vec<QuarterUnit>,
+    pub totals: QuarterUnit,
+    pub caution: &'static str,
+}
+
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct QuarterUnit {
+    pub unit: String,
+    pub quarter: Period,
+    /// Cumulative from January 1 to the quarter's end (40 CFR 75 App. F Eq. F-4, F-13, F-27).
+    pub year_to_date: Period,
+}
+
+fn sum_opt(a: Option<Decimal>, b: Option<Decimal>) -> Option<Decimal> {
+    match (a, b) {
+        (None, None) => None,
+        (a, b) => Some((a.unwrap_or_default() + b.unwrap_or_default()).normalize()),
+    }
+}
+
+fn quarter_unit(unit: &str, quarters: &[Period], q: u32) -> QuarterUnit {
+    let mut ytd = Period {
+        quarter: None,
+        month: None,
+        heat_input_mmbtu: None,
+        so2_tons: None,
+        nox_tons: None,
+        co2_tons: None,
+    };
+    for p in quarters
+        .iter()
+        .filter(|p| p.quarter.is_some_and(|n| n <= q))
+    {
+        ytd.heat_input_mmbtu = sum_opt(ytd.heat_input_mmbtu, p.heat_input_mmbtu);
+        ytd.so2_tons = sum_opt(ytd.so2_tons, p.so2_tons);
+        ytd.nox_tons = sum_opt(ytd.nox_tons, p.nox_tons);
+        ytd.co2_tons = sum_opt(ytd.co2_tons, p.co2_tons);
+    }
+    QuarterUnit {
+        unit: unit.to_string(),
+        quarter: quarters
+            .iter()
+            .find(|p| p.quarter == Some(q))
+            .cloned()
+            .expect("four quarters"),
+        year_to_date: ytd,
+    }
+}
+
+/// The quarter `q` (1 to 4) of an annual report, with year-to-date sums.
+pub fn quarter(r: &AnnualReport, q: u32) -> QuarterReport {
+    assert!((1..=4).contains(&q), "a quarter is 1 to 4");
+    QuarterReport {
+        format_version: FORMAT_VERSION,
+        facility: r.facility.clone(),
+        facility_name: r.facility_name.clone(),
+        year: r.year,
+        quarter: q,
+        units: r
+            .units
+            .iter()
+            .map(|u| quarter_unit(&u.unit, &u.quarters, q))
+            .collect(),
+        totals: quarter_unit("Facility", &r.totals.quarters, q),
         caution: CAUTION,
     }
 }

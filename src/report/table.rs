@@ -54,6 +54,9 @@ pub fn annual(r: &AnnualReport) -> String {
         "{} ({}): annual emissions {} (site file version {}, rounding {})\n",
         r.facility_name, r.facility, r.year, r.site_version, r.rounding
     );
+    if let Some(c) = &r.certification {
+        let _ = writeln!(out, "{}\n", certification_line(c));
+    }
     let mut units = table(&[
         "Unit",
         "Kind",
@@ -221,4 +224,50 @@ fn programs(programs: &[serde_json::Value]) -> Table {
     }
     right_align(&mut t, 2);
     t
+}
+
+/// The quarterly report: each unit's quarter and year to date.
+pub fn quarter(r: &super::model::QuarterReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "{} ({}): quarter {} of {}, and the year to its end\n",
+        r.facility_name, r.facility, r.quarter, r.year
+    );
+    let mut t = table(&[
+        "Unit",
+        "Period",
+        "Heat input (MMBtu)",
+        "SO2 (tons)",
+        "NOx (tons)",
+        "CO2 (tons)",
+    ]);
+    for u in r.units.iter().chain(std::iter::once(&r.totals)) {
+        let mut row = vec![u.unit.clone(), format!("Q{}", r.quarter)];
+        row.extend(period_cells(&u.quarter));
+        t.add_row(row);
+        let mut row = vec![u.unit.clone(), format!("Jan 1 to end of Q{}", r.quarter)];
+        row.extend(period_cells(&u.year_to_date));
+        t.add_row(row);
+    }
+    right_align(&mut t, 2);
+    let _ = writeln!(out, "{t}\n");
+    let _ = writeln!(
+        out,
+        "{ABSENT} = quantity not tracked for the unit (no method in the site file)."
+    );
+    let _ = writeln!(out, "Caution: {}", r.caution);
+    out
+}
+
+/// "certified by NAME on DATE", and "amended" with each amendment.
+pub fn certification_line(c: &crate::report::model::CertificationView) -> String {
+    let mut line = format!("Certified by {} on {}", c.by, c.at);
+    if c.amended {
+        line.push_str("; amended");
+        for a in &c.amendments {
+            line.push_str(&format!(" on {} by {} ({})", a.at, a.by, a.reason));
+        }
+    }
+    line
 }
