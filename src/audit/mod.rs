@@ -142,25 +142,57 @@ pub fn entry_hash(e: &Entry) -> String {
     c.finish()
 }
 
-/// The fields a certified digest leaves out: the certification itself
-/// (shown after certifying), the site-file version number (a new version
-/// that changes no figure of the year changes nothing certified; one that
-/// changes a figure changes the units' numbers or methods, which are
-/// covered), and the programs' allowance reconciliation, which the
-/// year's settlement records and freezes on its own (a settlement is
-/// written after certification, at the true-up date).
-/// The journal head changes with every write, so it stays out too.
-const NOT_CERTIFIED_FIELDS: &[&str] = &["certification", "site_version", "programs", "journal"];
+/// The fields a certification covers: the year's figures and how they were
+/// computed, and nothing else, so that the report may gain fields (the JSON
+/// only ever gains fields) without breaking a digest already certified.
+/// Left out on purpose: the certification itself, the site-file version
+/// number (a new version that changes no figure changes nothing
+/// certified; one that does changes the units' numbers or methods), the
+/// programs' reconciliation (the year's settlement records and freezes it,
+/// at the true-up date, after certification), the journal head (it moves
+/// with every write) and presentation-only series such as the daily profile.
+const CERTIFIED_FIELDS: &[&str] = &[
+    "facility",
+    "facility_name",
+    "year",
+    "rounding",
+    "units",
+    "totals",
+];
+const CERTIFIED_UNIT_FIELDS: &[&str] = &[
+    "unit",
+    "kind",
+    "fuel",
+    "methods",
+    "operating_hours",
+    "heat_input_mmbtu",
+    "so2_tons",
+    "nox_tons",
+    "co2_tons",
+    "nox_rate_lb_per_mmbtu",
+    "substituted_hours",
+    "fuel_records",
+    "quarters",
+    "ozone_season",
+    "months",
+];
 
-/// SHA-256 of the canonical JSON (sorted keys, no spaces) of the annual
-/// reports of one year, one per facility, in facility order.
+fn keep_only(v: &mut serde_json::Value, fields: &[&str]) {
+    if let Some(map) = v.as_object_mut() {
+        map.retain(|k, _| fields.contains(&k.as_str()));
+    }
+}
+
+/// SHA-256 of the canonical JSON (sorted keys, no spaces) of the certified
+/// fields of the annual reports of one year, one per facility, in order.
 pub fn report_digest(reports: &[AnnualReport]) -> Result<String, serde_json::Error> {
     let mut values = Vec::with_capacity(reports.len());
     for r in reports {
         let mut v = serde_json::to_value(r)?;
-        if let Some(map) = v.as_object_mut() {
-            for field in NOT_CERTIFIED_FIELDS {
-                map.remove(*field);
+        keep_only(&mut v, CERTIFIED_FIELDS);
+        if let Some(units) = v.get_mut("units").and_then(|u| u.as_array_mut()) {
+            for u in units {
+                keep_only(u, CERTIFIED_UNIT_FIELDS);
             }
         }
         values.push(v);
