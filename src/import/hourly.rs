@@ -416,6 +416,9 @@ pub fn import_named(
         let columns = Columns::from_header(&record, REQUIRED, &optional).map_err(|e| FileErrors::new(&name, e))?;
         let layout = Layout::new(&columns);
         let batch_id = tx.next_batch_id()?;
+        // A first load holds nothing to compare with, so the index can wait.
+        let suspended_index = tx.suspend_hourly_index()?;
+        let first_load = suspended_index.is_some();
         let mut insert = tx.hour_inserter()?;
         // Per unit index of the file: its state, or why its rows are refused.
         let mut units: Vec<Result<UnitState, String>> = Vec::new();
@@ -440,8 +443,7 @@ pub fn import_named(
                         Some(true) => Ok(UnitState {
                             unit_no: tx.hourly_unit_no(&unit)?,
                             columns: 0,
-                            held_columns: tx
-                                .hourly_present(&unit)?
+                            held_columns: if first_load { None } else { tx.hourly_present(&unit)? }
                                 .map(|p| {
                                     p.iter()
                                         .enumerate()
@@ -483,6 +485,7 @@ pub fn import_named(
                     }
                     *slot = u32::try_from(line).unwrap_or(u32::MAX);
                     let held_year = match state.held_years.get(&year) {
+                        _ if first_load => false,
                         Some(h) => *h,
                         None => {
                             let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
@@ -545,6 +548,9 @@ pub fn import_named(
             return Err(fe.into());
         }
         drop(insert);
+        if let Some(sql) = &suspended_index {
+            tx.restore_hourly_index(sql)?;
+        }
         for state in units.iter().flatten() {
             for r in Reading::ALL {
                 if state.columns & (1 << r.index()) != 0 {

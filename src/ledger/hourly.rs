@@ -57,6 +57,31 @@ impl Tx<'_> {
         }
     }
 
+    /// For a first load into an empty hourly table: drop the unit-hour index
+    /// and return its exact DDL, to build it once at the end (a sorted build
+    /// beats keeping it up row by row). `None` where the table holds rows.
+    pub fn suspend_hourly_index(&self) -> Result<Option<String>> {
+        let empty: bool =
+            self.tx
+                .query_row("SELECT NOT EXISTS (SELECT 1 FROM hourly)", [], |r| r.get(0))?;
+        if !empty {
+            return Ok(None);
+        }
+        let sql: String = self.tx.query_row(
+            "SELECT sql FROM sqlite_master WHERE type = 'index' AND name = 'hourly_by_unit_hour'",
+            [],
+            |r| r.get(0),
+        )?;
+        self.tx.execute_batch("DROP INDEX hourly_by_unit_hour")?;
+        Ok(Some(sql))
+    }
+
+    /// Rebuild the index `suspend_hourly_index` dropped, from its own DDL.
+    pub fn restore_hourly_index(&self, sql: &str) -> Result<()> {
+        self.tx.execute_batch(sql)?;
+        Ok(())
+    }
+
     /// Whether the ledger holds any hour of unit `unit_no` in `[from, to)`.
     pub fn holds_hours(&self, unit_no: i64, from: i64, to: i64) -> Result<bool> {
         let mut stmt = self.tx.prepare_cached(
