@@ -59,6 +59,17 @@ pub struct AnnualArgs {
 pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
     let ledger = Ledger::open(ledger_path)?;
     match cmd {
+        ReportCommand::Annual(args)
+            if args.facility.is_none() && ledger.latest_sites()?.len() > 1 =>
+        {
+            if args.format == Format::Html {
+                bail!("the HTML report is one facility's document: pass --facility");
+            }
+            let model = fleet_report(&ledger, args.year)?;
+            super::emit(args.out.as_deref(), args.force, |w| {
+                report::render_fleet(&model, args.format, w)
+            })
+        }
         ReportCommand::Annual(args) => {
             let mut model = annual_report(&ledger, args.facility.as_deref(), args.year)?;
             model.certification = certification_view(&ledger, args.year)?;
@@ -103,12 +114,45 @@ pub fn annual_report(
                 .join(", ")
         ),
     };
+    Ok(facility_report(ledger, version, year)?.0)
+}
+
+/// One facility's report and the sum of its units' years.
+fn facility_report(
+    ledger: &Ledger,
+    version: &crate::ledger::SiteVersion,
+    year: i32,
+) -> anyhow::Result<(AnnualReport, crate::emissions::periods::Year)> {
     let site = crate::site::parse(&version.source)
         .map_err(|e| anyhow!("stored site file no longer parses: {}", e[0]))?;
     let years = crate::assemble::facility_years(ledger, &site, year, None)?;
     let mut model = report::model::annual(&site, version.version, year, &years);
     model.programs = super::allowances::program_reports(ledger, &site, year)?;
-    Ok(model)
+    let sum = years
+        .iter()
+        .fold(crate::emissions::periods::Year::default(), |acc, u| {
+            acc + u.year
+        });
+    Ok((model, sum))
+}
+
+/// Every facility of the ledger and the fleet's totals.
+pub fn fleet_report(ledger: &Ledger, year: i32) -> anyhow::Result<report::model::FleetReport> {
+    let mut facilities = Vec::new();
+    let mut fleet = crate::emissions::periods::Year::default();
+    for version in ledger.latest_sites()? {
+        let (mut model, sum) = facility_report(ledger, &version, year)?;
+        model.certification = certification_view(ledger, year)?;
+        facilities.push(model);
+        fleet = fleet + sum;
+    }
+    Ok(report::model::FleetReport {
+        format_version: report::FORMAT_VERSION,
+        year,
+        facilities,
+        fleet: report::model::totals(&fleet),
+        caution: report::CAUTION,
+    })
 }
 
 /// The year's certification, for the report to show.

@@ -232,6 +232,55 @@ pub fn annual(r: &AnnualReport) -> String {
     out
 }
 
+/// The fleet roll-up: every facility's rows under one header, then rows
+/// of scope `fleet` summing every unit of every facility, then the caution.
+pub fn fleet(r: &super::model::FleetReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(out, "{ANNUAL_COLUMNS}");
+    for f in &r.facilities {
+        let text = annual(f);
+        for line in text.lines().skip(1).filter(|l| !l.starts_with("note,")) {
+            out.push_str(line);
+            out.push('\n');
+        }
+    }
+    let t = &r.fleet;
+    let mut fleet_row = |period: &str, p: &Period, rate: Option<Decimal>| {
+        let _ = writeln!(
+            out,
+            "fleet,,{},,{period},{},{},{},{},{}{}",
+            r.year,
+            num(p.heat_input_mmbtu),
+            num(p.so2_tons),
+            num(p.nox_tons),
+            num(p.co2_tons),
+            num(rate),
+            no_program()
+        );
+    };
+    let year = Period {
+        quarter: None,
+        month: None,
+        heat_input_mmbtu: t.heat_input_mmbtu,
+        so2_tons: t.so2_tons,
+        nox_tons: t.nox_tons,
+        co2_tons: t.co2_tons,
+    };
+    fleet_row("year", &year, t.nox_rate_lb_per_mmbtu);
+    for q in &t.quarters {
+        fleet_row(&format!("Q{}", q.quarter.unwrap_or_default()), q, None);
+    }
+    fleet_row("ozone", &t.ozone_season, None);
+    let _ = writeln!(
+        out,
+        "note,,{},{},,,,,,{}",
+        r.year,
+        text_cell(r.caution),
+        no_program()
+    );
+    out
+}
+
 /// One program's reconciliation (the `allowances reconcile` JSON object)
 /// as CSV under [`RECONCILE_COLUMNS`].
 pub fn reconcile(p: &Value, caution: &str) -> String {

@@ -52,3 +52,22 @@ pub fn render_quarter(
         Format::Html => out.write_all(html::quarter(report).as_bytes()),
     }
 }
+
+/// Render the fleet roll-up: every facility, then the fleet's totals.
+pub fn render_fleet(
+    report: &model::FleetReport,
+    format: Format,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    match format {
+        Format::Table => out.write_all(table::fleet(report).as_bytes()),
+        Format::Json => {
+            serde_json::to_writer_pretty(&mut *out, report)?;
+            out.write_all(b"\n")
+        }
+        Format::Csv => out.write_all(csv::fleet(report).as_bytes()),
+        Format::Html => Err(std::io::Error::other(
+            "the HTML report is one facility's document",
+        )),
+    }
+}

@@ -187,6 +187,33 @@ fn daily_profile(year: i32, h: &HourlyResult) -> DailyProfile {
     }
 }
 
+/// The totals of a year of amounts: the year, its quarters and ozone season.
+pub fn totals(year: &crate::emissions::periods::Year) -> Totals {
+    let a = year.annual();
+    Totals {
+        heat_input_mmbtu: a.get(Quantity::HeatInput).map(|h| h.normalize()),
+        so2_tons: tons(a.so2()),
+        nox_tons: tons(a.nox()),
+        co2_tons: tons(a.co2()),
+        nox_rate_lb_per_mmbtu: nox_rate(a),
+        quarters: (1..=4)
+            .map(|q| period(year.quarter(q), Some(q), None))
+            .collect(),
+        ozone_season: period(year.ozone_season(), None, None),
+    }
+}
+
+/// Every facility of the ledger for one year, and the fleet's totals.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct FleetReport {
+    pub format_version: u32,
+    pub year: i32,
+    pub facilities: Vec<AnnualReport>,
+    /// Sums over every unit of every facility.
+    pub fleet: Totals,
+    pub caution: &'static str,
+}
+
 /// Build the annual report of one facility from its units' years.
 pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> AnnualReport {
     let mut facility = crate::emissions::periods::Year::default();
@@ -243,7 +270,6 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
             }
         })
         .collect();
-    let a = facility.annual();
     AnnualReport {
         format_version: FORMAT_VERSION,
         facility: site.facility.id.clone(),
@@ -252,17 +278,7 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
         site_version,
         rounding: site.facility.rounding.as_str(),
         units: reports,
-        totals: Totals {
-            heat_input_mmbtu: a.get(Quantity::HeatInput).map(|h| h.normalize()),
-            so2_tons: tons(a.so2()),
-            nox_tons: tons(a.nox()),
-            co2_tons: tons(a.co2()),
-            nox_rate_lb_per_mmbtu: nox_rate(a),
-            quarters: (1..=4)
-                .map(|q| period(facility.quarter(q), Some(q), None))
-                .collect(),
-            ozone_season: period(facility.ozone_season(), None, None),
-        },
+        totals: totals(&facility),
         programs: Vec::new(),
         certification: None,
         journal: None,

@@ -260,6 +260,51 @@ pub fn quarter(r: &super::model::QuarterReport) -> String {
     out
 }
 
+/// The fleet: each facility's report, then the fleet's totals.
+pub fn fleet(r: &super::model::FleetReport) -> String {
+    let mut out = String::new();
+    for f in &r.facilities {
+        out.push_str(&annual(f));
+        out.push('\n');
+    }
+    let t = &r.fleet;
+    let mut fleet = table(&[
+        "Period",
+        "Heat input (MMBtu)",
+        "SO2 (tons)",
+        "NOx (tons)",
+        "CO2 (tons)",
+    ]);
+    let year = Period {
+        quarter: None,
+        month: None,
+        heat_input_mmbtu: t.heat_input_mmbtu,
+        so2_tons: t.so2_tons,
+        nox_tons: t.nox_tons,
+        co2_tons: t.co2_tons,
+    };
+    let mut row = vec![format!("{}", r.year)];
+    row.extend(period_cells(&year));
+    fleet.add_row(row);
+    for q in &t.quarters {
+        let mut row = vec![format!("Q{}", q.quarter.unwrap_or_default())];
+        row.extend(period_cells(q));
+        fleet.add_row(row);
+    }
+    let mut row = vec!["Ozone season (May–Sep)".to_string()];
+    row.extend(period_cells(&t.ozone_season));
+    fleet.add_row(row);
+    right_align(&mut fleet, 1);
+    let _ = writeln!(
+        out,
+        "Fleet: {} facilities, {}\n{fleet}\n",
+        r.facilities.len(),
+        r.year
+    );
+    let _ = writeln!(out, "Caution: {}", r.caution);
+    out
+}
+
 /// "certified by NAME on DATE", and "amended" with each amendment.
 pub fn certification_line(c: &crate::report::model::CertificationView) -> String {
     let mut line = format!("Certified by {} on {}", c.by, c.at);
