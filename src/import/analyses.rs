@@ -8,7 +8,7 @@ use crate::compute::record_amounts;
 use crate::csvread::{FileErrors, RowError};
 use crate::emissions::fuel::GcvUom;
 use crate::emissions::fuel_based::Analysis;
-use crate::ledger::{Ledger, NewBatch, Reads};
+use crate::ledger::{Ledger, Reads};
 use crate::records::Sample;
 use rust_decimal_macros::dec;
 
@@ -146,17 +146,7 @@ pub fn import(
         if done.added + done.corrected == 0 {
             return Ok(done);
         }
-        let batch = tx.insert_batch(&NewBatch {
-            kind: "analyses",
-            file_name: &file.name,
-            sha256: &file.sha256,
-            rows_added: done.added,
-            rows_corrected: done.corrected,
-            rows_present: done.present,
-            at: &stamp.at,
-            by: &stamp.by,
-            reason: correct.filter(|_| done.corrected > 0),
-        })?;
+        let batch = super::insert_batch(tx, "analyses", file, &done, stamp, correct)?;
         for ((line, sample), action) in rows.iter().zip(&actions) {
             match action {
                 Action::Add => tx.insert_sample(batch, *line, sample, None)?,

@@ -8,7 +8,7 @@ use super::{
 use crate::compute::record_amounts;
 use crate::csvread::{shown, FileErrors, RowError};
 use crate::emissions::fuel::{Fuel, FuelAmount, FuelUom};
-use crate::ledger::{Ledger, NewBatch, Reads};
+use crate::ledger::{Ledger, Reads};
 use crate::records::FuelUse;
 use chrono::{Datelike, NaiveDate};
 use std::collections::HashMap;
@@ -170,17 +170,7 @@ pub fn import(
         if done.added + done.corrected == 0 {
             return Ok(done);
         }
-        let batch = tx.insert_batch(&NewBatch {
-            kind: "fuel",
-            file_name: &file.name,
-            sha256: &file.sha256,
-            rows_added: done.added,
-            rows_corrected: done.corrected,
-            rows_present: done.present,
-            at: &stamp.at,
-            by: &stamp.by,
-            reason: correct.filter(|_| done.corrected > 0),
-        })?;
+        let batch = super::insert_batch(tx, "fuel", file, &done, stamp, correct)?;
         for ((line, u), action) in rows.iter().zip(&actions) {
             match action {
                 Action::Add => tx.insert_fuel_use(batch, *line, u, None)?,

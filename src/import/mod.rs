@@ -360,3 +360,25 @@ pub(crate) fn show_opt<T: fmt::Display>(v: &Option<T>) -> String {
         None => "empty".to_string(),
     }
 }
+
+/// Write the batch row of an import that adds or corrects rows.
+pub(crate) fn insert_batch(
+    tx: &crate::ledger::Tx,
+    kind: &str,
+    file: &InputFile,
+    done: &Outcome,
+    stamp: &Stamp,
+    correct: Option<&str>,
+) -> Result<i64, crate::ledger::LedgerError> {
+    tx.insert_batch(&crate::ledger::NewBatch {
+        kind,
+        file_name: &file.name,
+        sha256: &file.sha256,
+        rows_added: done.added,
+        rows_corrected: done.corrected,
+        rows_present: done.present,
+        at: &stamp.at,
+        by: &stamp.by,
+        reason: correct.filter(|_| done.corrected > 0),
+    })
+}

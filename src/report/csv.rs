@@ -139,14 +139,7 @@ pub fn annual(r: &AnnualReport) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "{ANNUAL_COLUMNS}");
     for u in &r.units {
-        let year = Period {
-            quarter: None,
-            month: None,
-            heat_input_mmbtu: u.heat_input_mmbtu,
-            so2_tons: u.so2_tons,
-            nox_tons: u.nox_tons,
-            co2_tons: u.co2_tons,
-        };
+        let year = u.year_period();
         row(
             &mut out,
             "unit",
@@ -181,14 +174,7 @@ pub fn annual(r: &AnnualReport) -> String {
         }
     }
     let t = &r.totals;
-    let year = Period {
-        quarter: None,
-        month: None,
-        heat_input_mmbtu: t.heat_input_mmbtu,
-        so2_tons: t.so2_tons,
-        nox_tons: t.nox_tons,
-        co2_tons: t.co2_tons,
-    };
+    let year = t.year_period();
     row(
         &mut out,
         "facility",
@@ -258,14 +244,7 @@ pub fn fleet(r: &super::model::FleetReport) -> String {
             no_program()
         );
     };
-    let year = Period {
-        quarter: None,
-        month: None,
-        heat_input_mmbtu: t.heat_input_mmbtu,
-        so2_tons: t.so2_tons,
-        nox_tons: t.nox_tons,
-        co2_tons: t.co2_tons,
-    };
+    let year = t.year_period();
     fleet_row("year", &year, t.nox_rate_lb_per_mmbtu);
     for q in &t.quarters {
         fleet_row(&format!("Q{}", q.quarter.unwrap_or_default()), q, None);

@@ -436,14 +436,7 @@ fn quarters_table(r: &AnnualReport, out: &mut String) {
                     esc(&u.unit),
                     unit_key(u),
                     &u.quarters,
-                    Period {
-                        quarter: None,
-                        month: None,
-                        heat_input_mmbtu: u.heat_input_mmbtu,
-                        so2_tons: u.so2_tons,
-                        nox_tons: u.nox_tons,
-                        co2_tons: u.co2_tons,
-                    },
+                    u.year_period(),
                     false,
                 )
             })
@@ -451,14 +444,7 @@ fn quarters_table(r: &AnnualReport, out: &mut String) {
                 "Facility".to_string(),
                 "totals".to_string(),
                 &t.quarters,
-                Period {
-                    quarter: None,
-                    month: None,
-                    heat_input_mmbtu: t.heat_input_mmbtu,
-                    so2_tons: t.so2_tons,
-                    nox_tons: t.nox_tons,
-                    co2_tons: t.co2_tons,
-                },
+                t.year_period(),
                 true,
             )));
         for (name, prefix, quarters, year, total) in rows {

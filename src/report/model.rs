@@ -142,6 +142,34 @@ pub struct Totals {
     pub ozone_season: Period,
 }
 
+impl UnitReport {
+    /// The unit's year as a period, for renderers that print periods.
+    pub fn year_period(&self) -> Period {
+        Period {
+            quarter: None,
+            month: None,
+            heat_input_mmbtu: self.heat_input_mmbtu,
+            so2_tons: self.so2_tons,
+            nox_tons: self.nox_tons,
+            co2_tons: self.co2_tons,
+        }
+    }
+}
+
+impl Totals {
+    /// The year's totals as a period, for renderers that print periods.
+    pub fn year_period(&self) -> Period {
+        Period {
+            quarter: None,
+            month: None,
+            heat_input_mmbtu: self.heat_input_mmbtu,
+            so2_tons: self.so2_tons,
+            nox_tons: self.nox_tons,
+            co2_tons: self.co2_tons,
+        }
+    }
+}
+
 fn tons(lb: Option<Lb>) -> Option<Decimal> {
     lb.map(|lb| lb.to_tons().0.normalize())
 }

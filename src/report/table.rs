@@ -75,14 +75,7 @@ pub fn annual(r: &AnnualReport) -> String {
             u.fuel.to_string(),
             u.fuel_records.to_string(),
         ];
-        row.extend(period_cells(&Period {
-            quarter: None,
-            month: None,
-            heat_input_mmbtu: u.heat_input_mmbtu,
-            so2_tons: u.so2_tons,
-            nox_tons: u.nox_tons,
-            co2_tons: u.co2_tons,
-        }));
+        row.extend(period_cells(&u.year_period()));
         row.push(fixed(u.nox_rate_lb_per_mmbtu, 3));
         units.add_row(row);
     }
@@ -275,14 +268,7 @@ pub fn fleet(r: &super::model::FleetReport) -> String {
         "NOx (tons)",
         "CO2 (tons)",
     ]);
-    let year = Period {
-        quarter: None,
-        month: None,
-        heat_input_mmbtu: t.heat_input_mmbtu,
-        so2_tons: t.so2_tons,
-        nox_tons: t.nox_tons,
-        co2_tons: t.co2_tons,
-    };
+    let year = t.year_period();
     let mut row = vec![format!("{}", r.year)];
     row.extend(period_cells(&year));
     fleet.add_row(row);
