@@ -29,6 +29,9 @@ pub use rows::{BatchSummary, NewBatch, Reads, SiteVersion};
 /// The schema version that added the journal (schema/0004_journal.sql).
 const JOURNAL_VERSION: i32 = 4;
 
+/// Page cache of a write transaction, KiB.
+const WRITE_CACHE_KIB: u32 = 64 * 1024;
+
 /// How long a command waits for another process's write lock (RELIABILITY.md R2).
 pub const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
 
@@ -160,10 +163,7 @@ impl Ledger {
                 LedgerError::Damaged(_) => LedgerError::NotALedger(path.to_path_buf()),
                 other => other,
             })?;
-        // A 64 MiB page cache keeps a large import from spilling dirty pages (and syncing the journal) mid-transaction.
-        conn.execute_batch(
-            "PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON; PRAGMA cache_size=-65536;",
-        )?;
+        conn.execute_batch("PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")?;
         let synchronous: i64 = conn.query_row("PRAGMA synchronous", [], |r| r.get(0))?;
         // RELIABILITY.md C8: never run with a weaker durability setting.
         assert_eq!(synchronous, 2, "synchronous must be FULL");
@@ -264,6 +264,12 @@ impl Ledger {
         &mut self,
         f: impl FnOnce(&Tx) -> std::result::Result<T, E>,
     ) -> std::result::Result<T, E> {
+        // A write gets a 64 MiB page cache, so a large import does not spill
+        // dirty pages (and sync the journal) mid-transaction; reads keep
+        // SQLite's small default, so parallel report readers stay small.
+        self.conn
+            .execute_batch(&format!("PRAGMA cache_size=-{WRITE_CACHE_KIB};"))
+            .map_err(LedgerError::from)?;
         let tx = self
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
