@@ -29,6 +29,7 @@ Examples:
   flue allowances reconcile --program SO2-ANNUAL --year 2025
   flue report annual --year 2025
   flue report annual --year 2025 --format html --out mc1-2025.html
+  flue history fuel --unit K1 --fuel bituminous --start 2025-03-01 --end 2025-03-31
   flue demo
   flue completions bash
 
