@@ -7,6 +7,7 @@ mod completions;
 mod demo;
 mod demo_hourly;
 mod explain;
+mod history;
 mod import;
 mod init;
 mod progress;
@@ -28,6 +29,7 @@ Examples:
   flue allowances reconcile --program SO2-ANNUAL --year 2025
   flue report annual --year 2025
   flue report annual --year 2025 --format html --out mc1-2025.html
+  flue history fuel --unit K1 --fuel bituminous --start 2025-03-01 --end 2025-03-31
   flue demo
   flue completions bash
 
@@ -84,6 +86,11 @@ pub enum Command {
         after_help = "Examples:\n  flue explain so2 --unit K2 --hour 2025-06-17T05:00\n  flue explain nox --unit K1 --year 2025 --format json"
     )]
     Explain(explain::ExplainArgs),
+    /// Every stored version of one record, oldest first: values, file, line, sha256, who, when and why.
+    #[command(
+        after_help = "Examples:\n  flue history fuel --unit K1 --fuel bituminous --start 2025-03-01 --end 2025-03-31\n  flue history hour --unit K2 --hour 2025-06-17T05:00 --format json\n  flue history sample K1-C-2501\n  flue history transaction MC-A25-SO2"
+    )]
+    History(history::HistoryArgs),
     /// Build the invented demo plant in a new directory and print its year-end report.
     #[command(after_help = "Examples:\n  flue demo\n  flue demo --dir /tmp/flue-demo")]
     Demo(demo::DemoArgs),
@@ -135,6 +142,7 @@ pub fn run(cli: Cli) -> Outcome {
         Command::Allowances(cmd) => allowances::run(cmd, &cli.ledger),
         Command::Demo(args) => demo::run(args),
         Command::Explain(args) => explain::run(args, &cli.ledger),
+        Command::History(args) => history::run(args, &cli.ledger),
         Command::Verify(args) => verify::run(args, &cli.ledger),
         Command::Certify(args) => certify::run(args, &cli.ledger),
         Command::Completions(args) => completions::completions(args),

@@ -7,12 +7,14 @@
 //! are only ever inserted.
 
 mod allowances;
+mod history;
 mod hourly;
 mod journal;
 pub mod migrations;
 mod rows;
 
 pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use history::{Fields, HistoryReads, Provenance, StoredVersion};
 pub use hourly::{HourSource, HourlyReads};
 pub use journal::{
     schema_digest, Amendment, Certification, Certified, JournalReads, Problem, Verification,

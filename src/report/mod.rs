@@ -3,6 +3,7 @@
 pub mod allowances;
 pub mod csv;
 pub mod explain;
+pub mod history;
 pub mod html;
 pub mod model;
 pub mod svg;
