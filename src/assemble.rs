@@ -2,7 +2,9 @@
 //! through the pure engine, per unit. Every report, reconciliation and
 //! position reads its emissions through here, so they cannot disagree.
 
-use crate::compute::hourly::{stream_config, HourlyResult, HourlyYear};
+use crate::compute::hourly::{
+    site_specific_f_factors, stream_config_with, HourlyResult, HourlyYear,
+};
 use crate::compute::{facility_year, UnitYear};
 use crate::ledger::{HourlyReads, LedgerError, Reads};
 use crate::records::{hour_index, FuelUse, Stored};
@@ -138,7 +140,7 @@ fn hourly_year(
     let Some(present) = r.hourly_present(&unit.id).map_err(|e| e.to_string())? else {
         return Ok(None);
     };
-    let config = stream_config(unit, rounding, &present)?;
+    let config = stream_config_with(unit, rounding, &present, unit_f_factors(r, unit)?)?;
     let mut acc = HourlyYear::new(unit, config, year)?;
     let end = hour_limit.map_or(acc.end_hour(), |l| l.min(acc.end_hour()));
     let mut failed: Option<String> = None;
@@ -180,7 +182,7 @@ pub fn hour_out(
     let Some(present) = r.hourly_present(&unit.id).map_err(|e| e.to_string())? else {
         return Ok(None);
     };
-    let config = stream_config(unit, rounding, &present)?;
+    let config = stream_config_with(unit, rounding, &present, unit_f_factors(r, unit)?)?;
     let mut stream = crate::emissions::substitute::UnitStream::new(config)
         .map_err(|e| format!("unit {}: {e}", unit.id))?;
     let mut found = None;
@@ -216,4 +218,27 @@ pub fn hour_out(
         }
     }
     Ok(found)
+}
+
+/// A unit's F-factors: from its `f_factors_sample`'s ultimate analysis
+/// (40 CFR 75 App. F Eq. F-7a/F-7b) where the site file names one, else
+/// App. F Table 1 by its fuel.
+pub fn unit_f_factors(
+    r: &(impl Reads + ?Sized),
+    unit: &Unit,
+) -> Result<crate::emissions::constants::FFactors, String> {
+    let Some(id) = &unit.f_factors_sample else {
+        return Ok(crate::emissions::constants::f_factors(unit.fuel));
+    };
+    let samples = r.samples().map_err(|e| e.to_string())?;
+    let sample = samples
+        .iter()
+        .find(|s| &s.value.sample == id)
+        .ok_or_else(|| {
+            format!(
+                "unit {}: f_factors_sample {id} is not in the ledger",
+                unit.id
+            )
+        })?;
+    site_specific_f_factors(unit, &sample.value)
 }

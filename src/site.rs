@@ -116,6 +116,9 @@ pub struct Unit {
     pub max_load_mw: Option<Decimal>,
     /// Maximum potential values and gap bounds for missing monitor data.
     pub limits: CemsLimits,
+    /// A sample whose ultimate analysis gives site-specific F-factors
+    /// (40 CFR 75 App. F §3.3.6, Eq. F-7a/F-7b); App. F Table 1 otherwise.
+    pub f_factors_sample: Option<String>,
     pub methods: Vec<MethodEntry>,
     pub line: usize,
 }
@@ -283,6 +286,7 @@ struct RawUnit {
     max_h2o_pct: Field,
     min_o2_pct: Field,
     max_co2_pct: Field,
+    f_factors_sample: Field,
     #[serde(default)]
     methods: Vec<Spanned<RawMethod>>,
 }
@@ -644,6 +648,10 @@ fn build_unit(u: &Spanned<RawUnit>, lines: &Lines, errors: &mut Vec<SiteError>) 
             max_co2_pct: optional("max_co2_pct", &raw.max_co2_pct, true)?,
         })
     })();
+    let f_factors_sample = match &raw.f_factors_sample {
+        None => Some(None),
+        some => r.text("f_factors_sample", some).map(Some),
+    };
     let table = r.table.clone();
     let methods: Vec<Option<MethodEntry>> = raw
         .methods
@@ -662,6 +670,7 @@ fn build_unit(u: &Spanned<RawUnit>, lines: &Lines, errors: &mut Vec<SiteError>) 
             None
         },
         limits: limits?,
+        f_factors_sample: f_factors_sample?,
         methods,
         line: table_line,
     })

@@ -1,6 +1,5 @@
 use crate::assemble::{facility_years, hour_out};
 use crate::compute::record_amounts;
-use crate::emissions::constants::f_factors;
 use crate::emissions::method::{Method, Quantity};
 use crate::ledger::{HourlyReads, Ledger, Reads};
 use crate::records::hour_index;
@@ -85,8 +84,13 @@ pub fn run(args: &ExplainArgs, ledger_path: &Path) -> super::Outcome {
                 &out,
                 &row,
                 &source,
-                f_factors(unit.fuel),
-                unit.fuel.as_str(),
+                crate::assemble::unit_f_factors(&ledger, unit).map_err(|e| anyhow!(e))?,
+                &match &unit.f_factors_sample {
+                    Some(id) => {
+                        format!("40 CFR 75 App. F Eq. F-7a/F-7b, ultimate analysis of sample {id}")
+                    }
+                    None => format!("40 CFR 75 App. F Table 1, {}", unit.fuel),
+                },
                 default_rate,
                 &ledger.hourly_present(&unit.id)?.unwrap_or_default(),
             );

@@ -55,6 +55,49 @@ pub fn stream_config(
     rounding: Rounding,
     present: &Present,
 ) -> Result<StreamConfig, String> {
+    stream_config_with(unit, rounding, present, f_factors(unit.fuel))
+}
+
+/// Site-specific F-factors from a sample's ultimate analysis (40 CFR 75
+/// App. F §3.3.6, Eq. F-7a/F-7b): percents by weight and GCV in Btu/lb.
+pub fn site_specific_f_factors(
+    unit: &Unit,
+    sample: &crate::records::Sample,
+) -> Result<crate::emissions::constants::FFactors, String> {
+    let a = &sample.analysis;
+    let need = |v: Option<Decimal>, field: &str| {
+        v.ok_or_else(|| {
+            format!(
+                "unit {}: f_factors_sample {} has no {field}, which Eq. F-7a needs",
+                unit.id, sample.sample
+            )
+        })
+    };
+    if a.gcv_uom != Some(crate::emissions::fuel::GcvUom::BtuPerLb) {
+        return Err(format!(
+            "unit {}: f_factors_sample {} needs a GCV in btu/lb for Eq. F-7a",
+            unit.id, sample.sample
+        ));
+    }
+    Ok(crate::emissions::cems::site_f_factors(
+        &crate::emissions::cems::UltimateAnalysis {
+            hydrogen_pct: need(a.hydrogen_pct, "hydrogen_pct")?,
+            carbon_pct: need(a.carbon_pct, "carbon_pct")?,
+            sulfur_pct: need(a.sulfur_pct, "sulfur_pct")?,
+            nitrogen_pct: need(a.nitrogen_pct, "nitrogen_pct")?,
+            oxygen_pct: need(a.oxygen_pct, "oxygen_pct")?,
+            gcv_btu_per_lb: need(a.gcv, "gcv")?,
+        },
+    ))
+}
+
+/// [`stream_config`] with the F-factors given.
+pub fn stream_config_with(
+    unit: &Unit,
+    rounding: Rounding,
+    present: &Present,
+    f: crate::emissions::constants::FFactors,
+) -> Result<StreamConfig, String> {
     let basis = |wet: Reading, dry: Reading, what: &str| -> Result<Basis, String> {
         match (present[wet.index()], present[dry.index()]) {
             (true, true) => Err(format!(
@@ -88,7 +131,7 @@ pub fn stream_config(
     Ok(StreamConfig {
         unit: CemsUnit {
             kind: unit.kind,
-            f: f_factors(unit.fuel),
+            f,
             heat_input_diluent: cems(Quantity::HeatInput).unwrap_or(Diluent::O2),
             nox_diluent: cems(Quantity::Nox).unwrap_or(Diluent::O2),
             bases,

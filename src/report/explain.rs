@@ -204,7 +204,7 @@ pub fn hour(
     row: &HourRow,
     source: &HourSource,
     f: FFactors,
-    fuel: &str,
+    f_source: &str,
     default_rate: Option<Decimal>,
     present: &[bool; Reading::COUNT],
 ) -> HourExplanation {
@@ -285,12 +285,12 @@ pub fn hour(
             Constant {
                 name: "F (dscf/MMBtu)",
                 value: f.f_dscf_per_mmbtu,
-                source: format!("40 CFR 75 App. F Table 1, {fuel}"),
+                source: f_source.to_string(),
             },
             Constant {
                 name: "Fc (scf CO2/MMBtu)",
                 value: f.fc_scf_per_mmbtu,
-                source: format!("40 CFR 75 App. F Table 1, {fuel}"),
+                source: f_source.to_string(),
             },
         ],
         substituted,
