@@ -163,84 +163,112 @@ fn kill9_during_a_large_hourly_import() {
         before + 100_000
     );
 
-    const RUNS: usize = 50;
-    let mut rng = Rng::new("kill9");
-    let delays: Vec<Duration> = (0..RUNS)
-        .map(|_| Duration::from_micros(rng.below(span.as_micros() as u64 + 1)))
-        .collect();
-    let (present, absent, killed) = (
-        Arc::new(AtomicUsize::new(0)),
-        Arc::new(AtomicUsize::new(0)),
-        Arc::new(AtomicUsize::new(0)),
-    );
+    // At least KILLS kills inside the import (a run whose import ended
+    // before the kill counts as a run, not a kill), at most MAX_RUNS runs.
+    // Re-running to completion and then to "nothing new" costs two more
+    // imports, so it is done on every RERUN_EVERY-th run (and on every run
+    // whose import was already present); FAULTS_RERUN_EVERY=1 does it always.
+    const KILLS: usize = 50;
+    const MAX_RUNS: usize = 80;
+    let rerun_every: usize = std::env::var("FAULTS_RERUN_EVERY")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(5)
+        .max(1);
+    let rng = Arc::new(std::sync::Mutex::new(Rng::new("kill9")));
+    let window = span.as_micros() as u64 * 9 / 10 + 1;
+    let next_run = Arc::new(AtomicUsize::new(0));
+    let counters: Arc<[AtomicUsize; 5]> = Arc::new(Default::default());
+    const KILLED: usize = 0;
+    const PRESENT: usize = 1;
+    const ABSENT: usize = 2;
+    const RERUNS: usize = 3;
+    const RUNS: usize = 4;
     let workers: Vec<_> = (0..2)
-        .map(|w| {
-            let delays: Vec<Duration> = delays.iter().skip(w).step_by(2).copied().collect();
+        .map(|_| {
             let (base, big_s, dir) = (base.clone(), big_s.clone(), tmp.path().to_path_buf());
-            let (present, absent, killed) = (present.clone(), absent.clone(), killed.clone());
-            std::thread::spawn(move || {
-                for (i, delay) in delays.into_iter().enumerate() {
-                    let ledger = dir.join(format!("kill-{w}-{i}.db"));
-                    std::fs::copy(&base, &ledger).unwrap();
-                    let mut child = flue_cmd(&ledger)
-                        .args(["--quiet", "import", "hourly", &big_s])
-                        .stdin(Stdio::null())
-                        .stdout(Stdio::null())
-                        .stderr(Stdio::null())
-                        .spawn()
-                        .expect("spawn import");
-                    std::thread::sleep(delay);
-                    let _ = child.kill(); // SIGKILL; fails only if it has already ended
-                    let status = child.wait().unwrap();
-                    use std::os::unix::process::ExitStatusExt;
-                    match (status.code(), status.signal()) {
-                        (None, Some(9)) => {
-                            killed.fetch_add(1, Ordering::Relaxed);
-                        }
-                        (Some(0), _) => {}
-                        other => panic!("import ended with {other:?} before the kill"),
+            let (rng, next_run, c) = (rng.clone(), next_run.clone(), counters.clone());
+            std::thread::spawn(move || loop {
+                if c[KILLED].load(Ordering::SeqCst) >= KILLS {
+                    break;
+                }
+                let run = next_run.fetch_add(1, Ordering::SeqCst);
+                assert!(
+                    run < MAX_RUNS,
+                    "fewer than {KILLS} kills in {MAX_RUNS} runs"
+                );
+                let delay = Duration::from_micros(rng.lock().unwrap().below(window));
+                let ledger = dir.join(format!("kill-{run}.db"));
+                std::fs::copy(&base, &ledger).unwrap();
+                let mut child = flue_cmd(&ledger)
+                    .args(["--quiet", "import", "hourly", &big_s])
+                    .stdin(Stdio::null())
+                    .stdout(Stdio::null())
+                    .stderr(Stdio::null())
+                    .spawn()
+                    .expect("spawn import");
+                std::thread::sleep(delay);
+                let _ = child.kill(); // SIGKILL; fails only if it has already ended
+                let status = child.wait().unwrap();
+                use std::os::unix::process::ExitStatusExt;
+                match (status.code(), status.signal()) {
+                    (None, Some(9)) => {
+                        c[KILLED].fetch_add(1, Ordering::SeqCst);
                     }
-                    verify_ok(&ledger);
-                    let rows = count(&ledger, "SELECT count(*) FROM hourly");
-                    if rows == before + 100_000 {
-                        present.fetch_add(1, Ordering::Relaxed);
-                    } else if rows == before {
-                        absent.fetch_add(1, Ordering::Relaxed);
-                    } else {
-                        panic!(
-                            "partial import after a kill at {delay:?}: {} of 100000 rows",
-                            rows - before
-                        );
+                    (Some(0), _) => {}
+                    other => panic!("import ended with {other:?} before the kill"),
+                }
+                c[RUNS].fetch_add(1, Ordering::SeqCst);
+                verify_ok(&ledger);
+                let rows = count(&ledger, "SELECT count(*) FROM hourly");
+                let present = if rows == before + 100_000 {
+                    c[PRESENT].fetch_add(1, Ordering::SeqCst);
+                    true
+                } else if rows == before {
+                    c[ABSENT].fetch_add(1, Ordering::SeqCst);
+                    false
+                } else {
+                    panic!(
+                        "partial import after a kill at {delay:?}: {} of 100000 rows",
+                        rows - before
+                    );
+                };
+                if present || run % rerun_every == 0 {
+                    c[RERUNS].fetch_add(1, Ordering::SeqCst);
+                    if !present {
+                        let out = flue(&ledger, &["import", "hourly", &big_s]);
+                        assert_eq!(out.status.code(), Some(0), "re-run: {}", text(&out));
+                        assert!(text(&out).contains("100000 new"), "{}", text(&out));
                     }
-                    let out = flue(&ledger, &["import", "hourly", &big_s]);
-                    assert_eq!(out.status.code(), Some(0), "re-run: {}", text(&out));
                     let out = flue(&ledger, &["import", "hourly", &big_s]);
                     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
                     assert!(
                         text(&out).contains("nothing new"),
-                        "second re-run: {}",
+                        "re-run after the complete import: {}",
                         text(&out)
                     );
                     assert_eq!(
                         count(&ledger, "SELECT count(*) FROM hourly"),
                         before + 100_000
                     );
-                    std::fs::remove_file(&ledger).unwrap();
                 }
+                std::fs::remove_file(&ledger).unwrap();
             })
         })
         .collect();
     for w in workers {
         w.join().expect("a kill worker failed");
     }
-    let (p, a, k) = (
-        present.load(Ordering::Relaxed),
-        absent.load(Ordering::Relaxed),
-        killed.load(Ordering::Relaxed),
-    );
-    assert_eq!(p + a, RUNS);
+    let get = |i: usize| counters[i].load(Ordering::SeqCst);
+    assert!(get(KILLED) >= KILLS);
+    assert_eq!(get(PRESENT) + get(ABSENT), get(RUNS));
     println!(
-        "faults: kill9 runs={RUNS} killed={k} present={p} absent={a} lost=0 partial=0 (import {span:?})"
+        "faults: kill9 runs={} lost=0 partial=0 killed={} present={} absent={} reruns={} (one import {span:?})",
+        get(RUNS),
+        get(KILLED),
+        get(PRESENT),
+        get(ABSENT),
+        get(RERUNS)
     );
 }
 
