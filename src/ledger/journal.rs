@@ -95,8 +95,12 @@ type SchemaObject = (String, String, String, String);
 
 fn schema_objects(conn: &Connection) -> Result<Vec<SchemaObject>> {
     let mut stmt = conn.prepare(
+        // Every object, automatic indexes included, compared by exact name:
+        // LIKE is case-blind, and a flipped bit turned "sqlite_autoindex_…"
+        // into "sqliTe_autoindex_…" unseen (tests/faults.rs, seed 31). Only
+        // ANALYZE statistics are left out; flue never creates them.
         "SELECT type, name, tbl_name, coalesce(sql, '') FROM sqlite_master
-         WHERE name NOT LIKE 'sqlite_%' ORDER BY type, name",
+         WHERE name NOT GLOB 'sqlite_stat*' ORDER BY type, name",
     )?;
     let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))?;
     Ok(rows.collect::<rusqlite::Result<_>>()?)

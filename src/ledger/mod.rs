@@ -166,6 +166,13 @@ impl Ledger {
                 other => other,
             })?;
         conn.execute_batch("PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;")?;
+        // Test-only (tests/faults.rs): cap the file at N pages to stand in for a full disk.
+        if let Some(pages) = std::env::var("FLUE_TEST_MAX_PAGES")
+            .ok()
+            .and_then(|v| v.parse::<u32>().ok())
+        {
+            conn.query_row(&format!("PRAGMA max_page_count = {pages}"), [], |_| Ok(()))?;
+        }
         let synchronous: i64 = conn.query_row("PRAGMA synchronous", [], |r| r.get(0))?;
         // RELIABILITY.md C8: never run with a weaker durability setting.
         assert_eq!(synchronous, 2, "synchronous must be FULL");
