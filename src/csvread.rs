@@ -39,6 +39,16 @@ impl RowError {
         }
     }
 
+    /// A record whose field count is not the header's.
+    pub fn field_count(record: &Record, expected: usize) -> Option<RowError> {
+        (record.len() != expected).then(|| {
+            RowError::line(
+                record.line,
+                format!("expected {expected} fields, found {}", record.len()),
+            )
+        })
+    }
+
     pub fn at(line: usize, column: usize, field: &str, message: impl Into<String>) -> RowError {
         RowError {
             line,

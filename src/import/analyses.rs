@@ -105,14 +105,7 @@ pub fn parse(file: &InputFile) -> Result<Vec<(usize, Sample)>, FileErrors> {
             } else {
                 ("gcv", "gcv_uom")
             };
-            let column = columns.index(missing).map(|i| i + 1).unwrap_or(0);
-            f.errors.push(RowError::at(
-                record.line,
-                column,
-                missing,
-                format!("expected a value, since {other} is given"),
-            ));
-            f.ok = false;
+            f.fail(missing, format!("expected a value, since {other} is given"));
         }
         if !f.ok {
             return None;

@@ -69,23 +69,10 @@ pub fn parse(file: &InputFile) -> Result<Vec<(usize, FuelUse)>, FileErrors> {
         let uom = f.word::<FuelUom>("uom", true, "a fuel unit");
         let sample = f.id("sample");
         if let (Some(s), Some(e)) = (start, end) {
-            let column = columns.index("end").map(|i| i + 1).unwrap_or(0);
             if e < s {
-                f.errors.push(RowError::at(
-                    record.line,
-                    column,
-                    "end",
-                    format!("{e} is before start {s}"),
-                ));
-                f.ok = false;
+                f.fail("end", format!("{e} is before start {s}"));
             } else if (s.year(), s.month()) != (e.year(), e.month()) {
-                f.errors.push(RowError::at(
-                    record.line,
-                    column,
-                    "end",
-                    format!("the record runs from {s} to {e}, across two months; a record lies within one calendar month, so split it at the month's end"),
-                ));
-                f.ok = false;
+                f.fail("end", format!("the record runs from {s} to {e}, across two months; a record lies within one calendar month, so split it at the month's end"));
             }
         }
         if !f.ok {

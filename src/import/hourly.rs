@@ -334,15 +334,8 @@ fn parse_records<R: BufRead>(
                 break;
             }
         }
-        if record.len() != layout.names.len() {
-            chunk.errors.push(RowError::line(
-                record.line,
-                format!(
-                    "expected {} fields, found {}",
-                    layout.names.len(),
-                    record.len()
-                ),
-            ));
+        if let Some(e) = RowError::field_count(&record, layout.names.len()) {
+            chunk.errors.push(e);
             continue;
         }
         let parsed = parse_record(layout, &record, &mut scratch);

@@ -125,15 +125,8 @@ pub fn parse_rows<T>(
         match reader.next_into(&mut record) {
             Ok(false) => break,
             Ok(true) => {
-                if record.len() != columns.names.len() {
-                    errors.push(RowError::line(
-                        record.line,
-                        format!(
-                            "expected {} fields, found {}",
-                            columns.names.len(),
-                            record.len()
-                        ),
-                    ));
+                if let Some(e) = RowError::field_count(&record, columns.names.len()) {
+                    errors.push(e);
                     continue;
                 }
                 if let Some(row) = parse_row(&columns, &record, &mut errors) {
@@ -190,7 +183,8 @@ impl<'a> Fields<'a> {
         }
     }
 
-    fn fail(&mut self, name: &str, message: String) {
+    /// Refuse the row at a column, by name.
+    pub fn fail(&mut self, name: &str, message: String) {
         let column = self.columns.index(name).map(|i| i + 1).unwrap_or(0);
         self.errors
             .push(RowError::at(self.record.line, column, name, message));

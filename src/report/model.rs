@@ -142,31 +142,44 @@ pub struct Totals {
     pub ozone_season: Period,
 }
 
+/// A year's figures as a period without quarter or month.
+fn year_period(
+    heat_input_mmbtu: Option<Decimal>,
+    so2_tons: Option<Decimal>,
+    nox_tons: Option<Decimal>,
+    co2_tons: Option<Decimal>,
+) -> Period {
+    Period {
+        quarter: None,
+        month: None,
+        heat_input_mmbtu,
+        so2_tons,
+        nox_tons,
+        co2_tons,
+    }
+}
+
 impl UnitReport {
     /// The unit's year as a period, for renderers that print periods.
     pub fn year_period(&self) -> Period {
-        Period {
-            quarter: None,
-            month: None,
-            heat_input_mmbtu: self.heat_input_mmbtu,
-            so2_tons: self.so2_tons,
-            nox_tons: self.nox_tons,
-            co2_tons: self.co2_tons,
-        }
+        year_period(
+            self.heat_input_mmbtu,
+            self.so2_tons,
+            self.nox_tons,
+            self.co2_tons,
+        )
     }
 }
 
 impl Totals {
     /// The year's totals as a period, for renderers that print periods.
     pub fn year_period(&self) -> Period {
-        Period {
-            quarter: None,
-            month: None,
-            heat_input_mmbtu: self.heat_input_mmbtu,
-            so2_tons: self.so2_tons,
-            nox_tons: self.nox_tons,
-            co2_tons: self.co2_tons,
-        }
+        year_period(
+            self.heat_input_mmbtu,
+            self.so2_tons,
+            self.nox_tons,
+            self.co2_tons,
+        )
     }
 }
 
