@@ -140,9 +140,11 @@ fn verify_passes_on_the_demo_and_a_fresh_ledger_and_catches_every_tamper_case() 
             "journal entry 3 (import-batch 2): rows edited",
         ),
         (
+            // Hourly rows are packed 512 to a block (schema/0005_hourly_blocks.sql):
+            // one byte changed inside block 8 changes a reading of one hour.
             "hourly-reading",
-            &["hourly"],
-            "UPDATE hourly SET so2_ppm_wet = so2_ppm_wet + 1 WHERE id = 4000",
+            &["hourly_blocks"],
+            "UPDATE hourly_blocks SET rows = CAST(substr(rows, 1, 40) || X'7f' || substr(rows, 42) AS BLOB) WHERE id = 8",
             "journal entry 4 (import-batch 3): rows edited",
         ),
         (
@@ -189,9 +191,9 @@ fn verify_passes_on_the_demo_and_a_fresh_ledger_and_catches_every_tamper_case() 
         ),
         (
             "hourly-delete-last",
-            &["hourly"],
-            "DELETE FROM hourly WHERE id = 8760",
-            "journal entry 4 (import-batch 3): hourly: 1 of its 8760 rows deleted",
+            &["hourly_blocks"],
+            "DELETE FROM hourly_blocks WHERE id = 18",
+            "journal entry 4 (import-batch 3): hourly_blocks: 1 of its 18 rows deleted",
         ),
         (
             "fuel-insert",

@@ -145,7 +145,10 @@ fn kill9_during_a_large_hourly_import() {
     let base = d.join("flue.db");
     let big = tmp.path().join("k2-2026-100k.csv");
     std::fs::write(&big, shifted_hourly(&d, 100_000)).unwrap();
-    let before = count(&base, "SELECT count(*) FROM hourly");
+    let before = count(
+        &base,
+        "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks",
+    );
     let big_s = big.to_str().unwrap().to_string();
 
     // How long one import takes here, to spread the kills over it.
@@ -156,7 +159,10 @@ fn kill9_during_a_large_hourly_import() {
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
     let span = t.elapsed();
     assert_eq!(
-        count(&probe, "SELECT count(*) FROM hourly"),
+        count(
+            &probe,
+            "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks"
+        ),
         before + 100_000
     );
 
@@ -217,7 +223,10 @@ fn kill9_during_a_large_hourly_import() {
                 }
                 c[RUNS].fetch_add(1, Ordering::SeqCst);
                 verify_ok(&ledger);
-                let rows = count(&ledger, "SELECT count(*) FROM hourly");
+                let rows = count(
+                    &ledger,
+                    "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks",
+                );
                 let present = if rows == before + 100_000 {
                     c[PRESENT].fetch_add(1, Ordering::SeqCst);
                     true
@@ -245,7 +254,10 @@ fn kill9_during_a_large_hourly_import() {
                         text(&out)
                     );
                     assert_eq!(
-                        count(&ledger, "SELECT count(*) FROM hourly"),
+                        count(
+                            &ledger,
+                            "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks"
+                        ),
                         before + 100_000
                     );
                 }

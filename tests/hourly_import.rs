@@ -615,3 +615,96 @@ fn a_held_hour_with_other_values_needs_correct_and_the_report_uses_the_correctio
     let out = plant.ok(&["import", "hourly", "fix.csv"]);
     assert!(out.contains("nothing new"), "{out}");
 }
+
+// ---- storage in blocks (schema/0005_hourly_blocks.sql) ----
+
+/// `n` K2 hours from 2025-04-01T00:00 with SO2 varying by hour, as rows.
+fn varied_hours(n: usize) -> Vec<String> {
+    let start = chrono::NaiveDate::from_ymd_opt(2025, 4, 1)
+        .unwrap()
+        .and_hms_opt(0, 0, 0)
+        .unwrap();
+    (0..n)
+        .map(|i| {
+            let hour = (start + chrono::Duration::hours(i as i64))
+                .format("%Y-%m-%dT%H:00")
+                .to_string();
+            row_with(
+                &hour,
+                "so2_ppm_wet",
+                &format!("{}.5", 200 + (i * 7919) % 300),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn rows_in_any_order_give_the_totals_of_sorted_rows() {
+    // 1,300 hours fill three blocks of 512. Reversed, and interleaved in a
+    // stride, every block's hours overlap others; the hours in force must
+    // still be each hour once, so the report is the same.
+    let rows = varied_hours(1300);
+    let sorted = Plant::new();
+    sorted.accept("sorted.csv", file(&rows));
+    let want = sorted.k2_report();
+    assert!(decimal(&want["so2_tons"]) > dec!(0));
+
+    let reversed: Vec<String> = rows.iter().rev().cloned().collect();
+    let plant = Plant::new();
+    plant.accept("reversed.csv", file(&reversed));
+    assert_eq!(plant.k2_report(), want, "reversed file");
+
+    let strided: Vec<String> = (0..7)
+        .flat_map(|k| rows.iter().skip(k).step_by(7).cloned())
+        .collect();
+    assert_eq!(strided.len(), rows.len());
+    let plant = Plant::new();
+    let out = plant.accept("strided.csv", file(&strided));
+    assert!(out.contains("1300 new"), "{out}");
+    assert_eq!(plant.k2_report(), want, "strided file");
+
+    // The same rows again in yet another order are all held already.
+    let out = plant.accept("again.csv", file(&reversed));
+    assert!(out.contains("nothing new"), "{out}");
+}
+
+#[test]
+fn a_correction_inside_a_block_supersedes_one_hour_and_history_keeps_both() {
+    let rows = varied_hours(1300);
+    let plant = Plant::new();
+    plant.accept("year.csv", file(&rows));
+    let before = decimal(&plant.k2_report()["so2_tons"]);
+    // Hour 700 sits in the second block; its SO2 was 200 + (700·7919 mod 300) + 0.5.
+    let old_ppm = Decimal::from(200 + (700 * 7919) % 300) + dec!(0.5);
+    let hour = "2025-04-30T04:00"; // 2025-04-01T00:00 + 700 h
+    let fix = file(&[row_with(hour, "so2_ppm_wet", "999")]);
+    plant.write("fix.csv", &fix);
+    let out = plant.ok(&["import", "hourly", "fix.csv", "--correct", "analyzer fault"]);
+    assert!(out.contains("1 corrected"), "{out}");
+    // Eq. F-1 with op_time 1 and GOOD's flow of 20,000,000 scfh: the total moves
+    // by K · Δppm · Q / 2000 tons exactly.
+    let k = dec!(0.0000001660);
+    let after = decimal(&plant.k2_report()["so2_tons"]);
+    assert_eq!(
+        after - before,
+        k * (dec!(999) - old_ppm) * dec!(20000000) / dec!(2000)
+    );
+
+    let history = plant.ok(&[
+        "history", "hour", "--unit", "K2", "--hour", hour, "--format", "json",
+    ]);
+    let h: Value = serde_json::from_str(&history).expect("JSON history");
+    let versions = h["versions"].as_array().expect("versions");
+    assert_eq!(versions.len(), 2, "{history}");
+    assert_eq!(versions[0]["in_force"], false, "{history}");
+    assert_eq!(versions[1]["in_force"], true, "{history}");
+    assert_eq!(versions[1]["supersedes"]["version"], 1, "{history}");
+    assert_eq!(
+        versions[1]["supersedes"]["reason"], "analyzer fault",
+        "{history}"
+    );
+    assert_eq!(versions[0]["superseded_by"], 2, "{history}");
+    assert_eq!(versions[0]["source"]["line"], 702, "{history}");
+    assert_eq!(versions[0]["source"]["file"], "year.csv", "{history}");
+    assert_eq!(versions[1]["source"]["line"], 2, "{history}");
+}

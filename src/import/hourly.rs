@@ -2,14 +2,15 @@
 //!
 //! The file is streamed: memory holds one record, the line numbers of the
 //! unit-hours seen (for duplicates, bounded by units × hours, not by file
-//! size) and the first errors. Every row is checked, then written in the
-//! same transaction; any error rolls everything back.
+//! size), each unit's block being filled (at most 512 rows, see
+//! src/ledger/blocks.rs) and the first errors. Every row is checked, then
+//! written in the same transaction; any error rolls everything back.
 
 use super::{ImportError, Outcome, Stamp};
 use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERRORS_SHOWN_MAX};
 use crate::decimal::{parse_fixed, FixedError};
 use crate::emissions::method::Method;
-use crate::ledger::{HourlyReads, Ledger, NewBatch, Reads};
+use crate::ledger::{BlockBuilder, HeldHours, HourlyReads, Ledger, NewBatch, Reads};
 use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
 use chrono::{Datelike, NaiveDateTime};
 use sha2::{Digest, Sha256};
@@ -250,6 +251,8 @@ struct UnitState {
     lines: HashMap<i32, Vec<u32>>,
     /// Years in which the ledger already holds hours of this unit.
     held_years: HashMap<i32, bool>,
+    /// The block of this unit's rows being filled.
+    block: BlockBuilder,
 }
 
 /// Import an hourly file: all rows or none.
@@ -409,10 +412,9 @@ pub fn import_named(
         let columns = Columns::from_header(&record, REQUIRED, &optional).map_err(|e| FileErrors::new(&name, e))?;
         let layout = Layout::new(&columns);
         let batch_id = tx.next_batch_id()?;
-        // A first load holds nothing to compare with, so the index can wait.
-        let suspended_index = tx.suspend_hourly_index()?;
-        let first_load = suspended_index.is_some();
-        let mut insert = tx.hour_inserter()?;
+        // A first load holds nothing to compare with.
+        let first_load = tx.hourly_empty()?;
+        let mut held_hours = HeldHours::default();
         // Per unit index of the file: its state, or why its rows are refused.
         let mut units: Vec<Result<UnitState, String>> = Vec::new();
         let mut unit_names: Vec<String> = Vec::new();
@@ -446,6 +448,7 @@ pub fn import_named(
                                 .unwrap_or(0),
                             lines: HashMap::new(),
                             held_years: HashMap::new(),
+                            block: BlockBuilder::default(),
                         }),
                     };
                     units.push(state);
@@ -486,15 +489,15 @@ pub fn import_named(
                             h
                         }
                     };
-                    let held = if held_year { tx.current_hour(state.unit_no, row.hour)? } else { None };
+                    let held = if held_year { held_hours.current(tx, state.unit_no, row.hour, batch_id)? } else { None };
                     let corrects = match held {
-                        None => None,
-                        Some((held_id, held_row)) => match row.first_difference(&held_row) {
+                        None => false,
+                        Some(held_row) => match row.first_difference(&held_row) {
                             None => {
                                 done.present += 1;
                                 continue;
                             }
-                            Some(_) if correct.is_some() => Some(held_id),
+                            Some(_) if correct.is_some() => true,
                             Some((field, was, now)) => {
                                 errors.push(RowError::line(
                                     line,
@@ -521,13 +524,18 @@ pub fn import_named(
                             state.columns |= 1 << i;
                         }
                     }
-                    let id = insert.insert(batch_id, line, state.unit_no, &row)?;
-                    match corrects {
-                        Some(old) => {
-                            tx.insert_hour_correction(id, old, correct.expect("checked"))?;
-                            done.corrected += 1;
-                        }
-                        None => done.added += 1,
+                    let line = u32::try_from(line).map_err(|_| {
+                        ImportError::Read(format!("{name}: line {line}: more lines than a file may hold"))
+                    })?;
+                    if !state.block.accepts(row.hour) {
+                        tx.insert_block(batch_id, state.unit_no, &state.block)?;
+                        state.block.clear();
+                    }
+                    state.block.push(line, &row);
+                    if corrects {
+                        done.corrected += 1;
+                    } else {
+                        done.added += 1;
                     }
                 }
             }
@@ -540,11 +548,10 @@ pub fn import_named(
             fe.omitted = errors.omitted;
             return Err(fe.into());
         }
-        drop(insert);
-        if let Some(sql) = &suspended_index {
-            tx.restore_hourly_index(sql)?;
-        }
         for state in units.iter().flatten() {
+            if state.block.rows > 0 {
+                tx.insert_block(batch_id, state.unit_no, &state.block)?;
+            }
             for r in Reading::ALL {
                 if state.columns & (1 << r.index()) != 0 {
                     tx.note_hourly_column(state.unit_no, r)?;

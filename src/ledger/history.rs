@@ -7,9 +7,9 @@
 //! fixed-point `HourRow`. Nothing here writes.
 
 use super::{LedgerError, Reads, Result};
-use crate::records::{HourRow, Reading};
+use crate::records::HourRow;
 use rusqlite::types::Value;
-use rusqlite::{params, Row};
+use rusqlite::Row;
 
 /// Where one stored version came from and what it supersedes.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -156,15 +156,6 @@ const TRANSACTION_COLUMNS: &[&str] = &[
     "settles_year",
 ];
 
-/// The reading columns of `hourly`, in `Reading::ALL` order.
-fn reading_columns() -> String {
-    Reading::ALL
-        .iter()
-        .map(|r| format!("x.{}", r.column()))
-        .collect::<Vec<_>>()
-        .join(", ")
-}
-
 /// History reads, for the ledger and a write transaction alike.
 pub trait HistoryReads: Reads {
     /// Every stored analysis of a sample, oldest first.
@@ -195,39 +186,41 @@ pub trait HistoryReads: Reads {
         )
     }
 
-    /// Every stored row of one unit-hour, oldest first.
+    /// Every stored row of one unit-hour, oldest first. Each version lives
+    /// in its own block (`row_id` is the block's id); every version after
+    /// the first supersedes the one before it with its batch's reason.
     fn hour_versions(&self, unit: &str, hour: i64) -> Result<Vec<StoredVersion<HourRow>>> {
-        let sql = format!(
-            "SELECT x.id, {PROVENANCE}, c.corrects_id, c.reason,
-                    NOT EXISTS (SELECT 1 FROM hourly_corrections d WHERE d.corrects_id = x.id),
-                    x.hour, x.op_time, {}
-             FROM hourly x JOIN hourly_units u ON u.unit_no = x.unit_no
-             JOIN import_batches b ON b.id = x.batch_id
-             LEFT JOIN hourly_corrections c ON c.id = x.id
-             WHERE u.unit = ?1 AND x.hour = ?2 ORDER BY x.id",
-            reading_columns()
-        );
-        let mut stmt = self.conn().prepare(&sql)?;
-        let mut rows = stmt.query(params![unit, hour])?;
-        let mut out = Vec::new();
-        while let Some(r) = rows.next()? {
-            let mut readings = [None; Reading::COUNT];
-            for (i, slot) in readings.iter_mut().enumerate() {
-                *slot = r.get(13 + i)?;
-            }
-            let value = HourRow {
-                hour: r.get(11)?,
-                op_time_centi: r.get(12)?,
-                readings,
-            };
-            // The schema's CHECKs hold; assert again after reading (STYLE.md).
-            assert!(
-                (0..=100).contains(&value.op_time_centi),
-                "stored op_time out of range"
-            );
+        let versions = super::hourly::hour_versions(self.conn(), unit, hour)?;
+        let mut stmt = self.conn().prepare_cached(
+            "SELECT file_name, sha256, imported_at, imported_by, reason FROM import_batches WHERE id = ?1",
+        )?;
+        let mut out: Vec<StoredVersion<HourRow>> = Vec::with_capacity(versions.len());
+        for (i, v) in versions.iter().enumerate() {
+            let (file, sha256, imported_at, imported_by, batch_reason): (
+                String,
+                String,
+                String,
+                String,
+                Option<String>,
+            ) = stmt.query_row([v.batch_id], |r| {
+                Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+            })?;
+            let corrects_id = i.checked_sub(1).map(|p| versions[p].block_id);
             out.push(StoredVersion {
-                provenance: provenance(r, r.get(0)?, 8, r.get(10)?)?,
-                value,
+                provenance: Provenance {
+                    row_id: v.block_id,
+                    batch_id: v.batch_id,
+                    file,
+                    line: i64::from(v.line),
+                    sha256,
+                    imported_at,
+                    imported_by,
+                    reason: corrects_id.and(batch_reason.clone()),
+                    batch_reason,
+                    corrects_id,
+                    in_force: i + 1 == versions.len(),
+                },
+                value: v.row,
             });
         }
         Ok(out)

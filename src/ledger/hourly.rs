@@ -1,29 +1,82 @@
-//! Hourly monitor rows: inserts and the streams reports read.
+//! Hourly monitor rows: blocks written by imports, and the streams reports
+//! read. A unit-hour may be held more than once (corrections); the version
+//! in the block with the highest id is in force (schema/0005_hourly_blocks.sql).
 
-use super::{Ledger, Reads, Result, Tx};
+use super::blocks::{decode, decode_all, BlockBuilder, BlockHead, BlockRow};
+use super::{Ledger, LedgerError, Reads, Result, Tx};
 use crate::records::{HourRow, Reading};
 use rusqlite::{params, Connection, OptionalExtension, Row};
+use std::collections::HashMap;
 
-const READING_COLUMNS: &str =
-    "load_mw, so2_ppm_wet, so2_ppm_dry, nox_ppm_wet, nox_ppm_dry, o2_pct_wet, o2_pct_dry, \
-     co2_pct_wet, co2_pct_dry, flow_scfh_wet, h2o_pct";
+/// A stored block's columns: id, batch, and what its bytes must hold.
+struct StoredBlock {
+    id: i64,
+    batch_id: i64,
+    head: BlockHead,
+    bytes: Vec<u8>,
+}
 
-fn hour_row(r: &Row, first: usize) -> rusqlite::Result<HourRow> {
-    let mut readings = [None; Reading::COUNT];
-    for (i, slot) in readings.iter_mut().enumerate() {
-        *slot = r.get(first + 2 + i)?;
+const BLOCK_COLUMNS: &str = "b.id, b.batch_id, b.first_hour, b.last_hour, b.row_count, b.rows";
+
+fn stored_block(r: &Row) -> rusqlite::Result<StoredBlock> {
+    Ok(StoredBlock {
+        id: r.get(0)?,
+        batch_id: r.get(1)?,
+        head: BlockHead {
+            first_hour: r.get(2)?,
+            last_hour: r.get(3)?,
+            row_count: r.get(4)?,
+        },
+        bytes: r.get(5)?,
+    })
+}
+
+fn damaged(block: i64, why: String) -> LedgerError {
+    LedgerError::Damaged(format!("hourly block {block}: {why}"))
+}
+
+impl StoredBlock {
+    fn each(&self, f: impl FnMut(BlockRow)) -> Result<()> {
+        decode(self.head, &self.bytes, f).map_err(|why| damaged(self.id, why))
     }
-    let row = HourRow {
-        hour: r.get(first)?,
-        op_time_centi: r.get(first + 1)?,
-        readings,
-    };
-    // The schema's CHECKs hold; assert again after reading (STYLE.md).
-    assert!(
-        (0..=100).contains(&row.op_time_centi),
-        "stored op_time out of range"
-    );
-    Ok(row)
+
+    fn rows(&self) -> Result<Vec<BlockRow>> {
+        decode_all(self.head, &self.bytes).map_err(|why| damaged(self.id, why))
+    }
+
+    /// The row of `hour`, if the block holds it.
+    fn find(&self, hour: i64) -> Result<Option<BlockRow>> {
+        let rows = self.rows()?;
+        Ok(rows
+            .binary_search_by_key(&hour, |r| r.row.hour)
+            .ok()
+            .map(|i| rows[i]))
+    }
+}
+
+/// Blocks of unit `unit` (by name) holding any hour in `[from, to)`, in
+/// order of first hour, then id.
+fn blocks_over(conn: &Connection, unit: &str, from: i64, to: i64) -> Result<Vec<StoredBlock>> {
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT {BLOCK_COLUMNS} FROM hourly_blocks b
+         WHERE b.unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1)
+           AND b.last_hour >= ?2 AND b.first_hour < ?3
+         ORDER BY b.first_hour, b.id"
+    ))?;
+    let rows = stmt.query_map(params![unit, from, to], stored_block)?;
+    Ok(rows.collect::<rusqlite::Result<_>>()?)
+}
+
+/// Blocks of unit `unit` (by name) holding `hour`'s range, newest first.
+fn blocks_at(conn: &Connection, unit: &str, hour: i64) -> Result<Vec<StoredBlock>> {
+    let mut stmt = conn.prepare_cached(&format!(
+        "SELECT {BLOCK_COLUMNS} FROM hourly_blocks b
+         WHERE b.unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1)
+           AND b.last_hour >= ?2 AND b.first_hour <= ?2
+         ORDER BY b.id DESC"
+    ))?;
+    let rows = stmt.query_map(params![unit, hour], stored_block)?;
+    Ok(rows.collect::<rusqlite::Result<_>>()?)
 }
 
 impl Tx<'_> {
@@ -57,60 +110,40 @@ impl Tx<'_> {
         }
     }
 
-    /// For a first load into an empty hourly table: drop the unit-hour index
-    /// and return its exact DDL, to build it once at the end (a sorted build
-    /// beats keeping it up row by row). `None` where the table holds rows.
-    pub fn suspend_hourly_index(&self) -> Result<Option<String>> {
-        let empty: bool =
-            self.tx
-                .query_row("SELECT NOT EXISTS (SELECT 1 FROM hourly)", [], |r| r.get(0))?;
-        if !empty {
-            return Ok(None);
-        }
-        let sql: String = self.tx.query_row(
-            "SELECT sql FROM sqlite_master WHERE type = 'index' AND name = 'hourly_by_unit_hour'",
-            [],
-            |r| r.get(0),
-        )?;
-        self.tx.execute_batch("DROP INDEX hourly_by_unit_hour")?;
-        Ok(Some(sql))
-    }
-
-    /// Rebuild the index `suspend_hourly_index` dropped, from its own DDL.
-    pub fn restore_hourly_index(&self, sql: &str) -> Result<()> {
-        self.tx.execute_batch(sql)?;
-        Ok(())
+    /// Whether the ledger holds no hourly rows at all (a first load has
+    /// nothing to compare with).
+    pub fn hourly_empty(&self) -> Result<bool> {
+        Ok(self
+            .tx
+            .query_row("SELECT NOT EXISTS (SELECT 1 FROM hourly_blocks)", [], |r| {
+                r.get(0)
+            })?)
     }
 
     /// Whether the ledger holds any hour of unit `unit_no` in `[from, to)`.
     pub fn holds_hours(&self, unit_no: i64, from: i64, to: i64) -> Result<bool> {
         let mut stmt = self.tx.prepare_cached(
-            "SELECT EXISTS (SELECT 1 FROM hourly WHERE unit_no = ?1 AND hour >= ?2 AND hour < ?3)",
+            "SELECT EXISTS (SELECT 1 FROM hourly_blocks
+                            WHERE unit_no = ?1 AND last_hour >= ?2 AND first_hour < ?3)",
         )?;
         Ok(stmt.query_row(params![unit_no, from, to], |r| r.get(0))?)
     }
 
-    /// The unit-hour in force: the latest row, since a correction always comes later.
-    pub fn current_hour(&self, unit_no: i64, hour: i64) -> Result<Option<(i64, HourRow)>> {
-        let sql = format!(
-            "SELECT id, hour, op_time, {READING_COLUMNS} FROM hourly WHERE unit_no = ?1 AND hour = ?2 ORDER BY id DESC LIMIT 1"
-        );
-        let mut stmt = self.tx.prepare_cached(&sql)?;
-        Ok(stmt
-            .query_row(params![unit_no, hour], |r| Ok((r.get(0)?, hour_row(r, 1)?)))
-            .optional()?)
-    }
-
-    /// A prepared insert for hourly rows, reused for a whole import.
-    pub fn hour_inserter(&self) -> Result<HourInserter<'_>> {
-        let stmt = self.tx.prepare(&format!(
-            "INSERT INTO hourly (batch_id, line, unit_no, hour, op_time, {READING_COLUMNS})
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16)"
-        ))?;
-        Ok(HourInserter {
-            stmt,
-            conn: &self.tx,
-        })
+    /// Write one filled block of unit `unit_no` for import batch `batch_id`.
+    pub fn insert_block(&self, batch_id: i64, unit_no: i64, block: &BlockBuilder) -> Result<()> {
+        let mut stmt = self.tx.prepare_cached(
+            "INSERT INTO hourly_blocks (batch_id, unit_no, first_hour, last_hour, row_count, rows)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+        )?;
+        stmt.execute(params![
+            batch_id,
+            unit_no,
+            block.first_hour,
+            block.last_hour,
+            block.rows as i64,
+            block.bytes
+        ])?;
+        Ok(())
     }
 
     /// Record that a unit's hours carry values in `reading`.
@@ -121,41 +154,110 @@ impl Tx<'_> {
         )?;
         Ok(())
     }
+}
 
-    pub fn insert_hour_correction(&self, id: i64, corrects_id: i64, reason: &str) -> Result<()> {
-        self.tx.execute(
-            "INSERT INTO hourly_corrections (id, corrects_id, reason) VALUES (?1, ?2, ?3)",
-            params![id, corrects_id, reason],
+/// Looks up the unit-hours in force before an import, decoding each block
+/// once while a file's rows walk through it.
+#[derive(Default)]
+pub struct HeldHours {
+    decoded: HashMap<i64, Vec<BlockRow>>,
+}
+
+/// Decoded blocks kept at most: bounds memory whatever the file's order.
+const HELD_BLOCKS_CACHED: usize = 256;
+
+impl HeldHours {
+    /// The row in force for unit `unit_no` at `hour`, from batches other
+    /// than `batch_id` (the import running).
+    pub fn current(
+        &mut self,
+        tx: &Tx,
+        unit_no: i64,
+        hour: i64,
+        batch_id: i64,
+    ) -> Result<Option<HourRow>> {
+        let mut stmt = tx.tx.prepare_cached(
+            "SELECT id FROM hourly_blocks
+             WHERE unit_no = ?1 AND last_hour >= ?2 AND first_hour <= ?2 AND batch_id <> ?3
+             ORDER BY id DESC",
         )?;
-        Ok(())
+        let ids: Vec<i64> = stmt
+            .query_map(params![unit_no, hour, batch_id], |r| r.get(0))?
+            .collect::<rusqlite::Result<_>>()?;
+        for id in ids {
+            if !self.decoded.contains_key(&id) {
+                if self.decoded.len() >= HELD_BLOCKS_CACHED {
+                    self.decoded.clear();
+                }
+                let block = tx.tx.query_row(
+                    &format!("SELECT {BLOCK_COLUMNS} FROM hourly_blocks b WHERE b.id = ?1"),
+                    [id],
+                    stored_block,
+                )?;
+                self.decoded.insert(id, block.rows()?);
+            }
+            let rows = &self.decoded[&id];
+            if let Ok(i) = rows.binary_search_by_key(&hour, |r| r.row.hour) {
+                return Ok(Some(rows[i].row));
+            }
+        }
+        Ok(None)
     }
 }
 
 /// Where a stored hour came from, for explanations.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct HourSource {
+    /// The id of the block that holds the hour (table `hourly_blocks`).
     pub id: i64,
     pub file: String,
     pub line: usize,
     pub sha256: String,
 }
 
+/// One stored version of a unit-hour: its block, batch, line and row.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct HourVersion {
+    pub block_id: i64,
+    pub batch_id: i64,
+    pub line: u32,
+    pub row: HourRow,
+}
+
+/// Every stored version of a unit-hour, oldest first.
+pub(super) fn hour_versions(conn: &Connection, unit: &str, hour: i64) -> Result<Vec<HourVersion>> {
+    let mut blocks = blocks_at(conn, unit, hour)?;
+    blocks.reverse();
+    let mut out = Vec::new();
+    for b in &blocks {
+        if let Some(r) = b.find(hour)? {
+            out.push(HourVersion {
+                block_id: b.id,
+                batch_id: b.batch_id,
+                line: r.line,
+                row: r.row,
+            });
+        }
+    }
+    Ok(out)
+}
+
 /// Hourly reads, for the ledger and for a write transaction alike.
 pub trait HourlyReads: Reads {
     /// Which reading columns a unit's stored hours use; `None` without hours.
     fn hourly_present(&self, unit: &str) -> Result<Option<[bool; Reading::COUNT]>> {
-        let mut stmt = self.conn().prepare(
-            "SELECT c.reading FROM hourly_unit_columns c JOIN hourly_units u ON u.unit_no = c.unit_no
-             WHERE u.unit = ?1",
-        )?;
         let has_hours: bool = self.conn().query_row(
-            "SELECT EXISTS (SELECT 1 FROM hourly h JOIN hourly_units u ON u.unit_no = h.unit_no WHERE u.unit = ?1)",
+            "SELECT EXISTS (SELECT 1 FROM hourly_blocks h JOIN hourly_units u ON u.unit_no = h.unit_no WHERE u.unit = ?1)",
             [unit],
             |r| r.get(0),
         )?;
         if !has_hours {
             return Ok(None);
         }
+        let mut stmt = self.conn().prepare(
+            "SELECT c.reading FROM hourly_unit_columns c JOIN hourly_units u ON u.unit_no = c.unit_no
+             WHERE u.unit = ?1",
+        )?;
         let mut present = [false; Reading::COUNT];
         let mut rows = stmt.query([unit])?;
         while let Some(r) = rows.next()? {
@@ -163,9 +265,7 @@ pub trait HourlyReads: Reads {
             let reading = Reading::ALL
                 .into_iter()
                 .find(|x| x.column() == name)
-                .ok_or_else(|| {
-                    super::LedgerError::Damaged(format!("unknown hourly column {name:?}"))
-                })?;
+                .ok_or_else(|| LedgerError::Damaged(format!("unknown hourly column {name:?}")))?;
             present[reading.index()] = true;
         }
         Ok(Some(present))
@@ -196,32 +296,33 @@ impl<T: Reads + ?Sized> HourlyReads for T {}
 impl Ledger {
     /// The stored row in force for a unit-hour, with its source.
     pub fn hour_with_source(&self, unit: &str, hour: i64) -> Result<Option<(HourRow, HourSource)>> {
-        let sql = format!(
-            "SELECT h.hour, h.op_time, {READING_COLUMNS}, h.id, b.file_name, h.line, b.sha256
-             FROM hourly h JOIN import_batches b ON b.id = h.batch_id
-             JOIN hourly_units u ON u.unit_no = h.unit_no
-             WHERE u.unit = ?1 AND h.hour = ?2 ORDER BY h.id DESC LIMIT 1"
-        );
-        let mut stmt = self.conn.prepare(&sql)?;
-        Ok(stmt
-            .query_row(params![unit, hour], |r| {
-                let row = hour_row(r, 0)?;
-                let n = 2 + Reading::COUNT;
-                let line: i64 = r.get(n + 2)?;
-                Ok((
-                    row,
-                    HourSource {
-                        id: r.get(n)?,
-                        file: r.get(n + 1)?,
-                        line: line as usize,
-                        sha256: r.get(n + 3)?,
-                    },
-                ))
-            })
-            .optional()?)
+        for b in blocks_at(&self.conn, unit, hour)? {
+            let Some(r) = b.find(hour)? else {
+                continue;
+            };
+            let (file, sha256): (String, String) = self.conn.query_row(
+                "SELECT file_name, sha256 FROM import_batches WHERE id = ?1",
+                [b.batch_id],
+                |x| Ok((x.get(0)?, x.get(1)?)),
+            )?;
+            return Ok(Some((
+                r.row,
+                HourSource {
+                    id: b.id,
+                    file,
+                    line: r.line as usize,
+                    sha256,
+                },
+            )));
+        }
+        Ok(None)
     }
 }
 
+/// Stream the hours in force of `unit` over `[from, to)` in hour order
+/// while `f` returns true. Blocks whose hours overlap (corrections, or a
+/// file out of hour order) are merged: of the rows of one hour, the one
+/// from the block with the highest id is in force.
 fn each_hour(
     conn: &Connection,
     unit: &str,
@@ -229,56 +330,49 @@ fn each_hour(
     to: i64,
     f: &mut impl FnMut(&HourRow) -> bool,
 ) -> Result<()> {
-    let sql = format!(
-        "SELECT hour, op_time, {READING_COLUMNS} FROM hourly
-         WHERE unit_no = (SELECT unit_no FROM hourly_units WHERE unit = ?1) AND hour >= ?2 AND hour < ?3
-         ORDER BY hour, id"
-    );
-    let mut stmt = conn.prepare(&sql)?;
-    let mut rows = stmt.query(params![unit, from, to])?;
-    // Rows of one hour arrive oldest first; the last of them is in force.
-    let mut pending: Option<HourRow> = None;
-    while let Some(r) = rows.next()? {
-        let row = hour_row(r, 0)?;
-        if let Some(p) = pending {
-            if p.hour != row.hour && !f(&p) {
+    // Rows of blocks that may overlap, with their block id.
+    let mut pending: Vec<(i64, HourRow)> = Vec::new();
+    let mut pending_blocks = 0usize;
+    let mut reach = i64::MIN;
+    for block in blocks_over(conn, unit, from, to)? {
+        if pending_blocks > 0 && block.head.first_hour > reach {
+            if !emit(&mut pending, pending_blocks > 1, f) {
                 return Ok(());
             }
+            pending_blocks = 0;
         }
-        pending = Some(row);
+        block.each(|r| {
+            if r.row.hour >= from && r.row.hour < to {
+                pending.push((block.id, r.row));
+            }
+        })?;
+        pending_blocks += 1;
+        reach = reach.max(block.head.last_hour);
     }
-    if let Some(p) = pending {
-        f(&p);
-    }
+    emit(&mut pending, pending_blocks > 1, f);
     Ok(())
 }
 
-/// Inserts hourly rows through one prepared statement.
-pub struct HourInserter<'a> {
-    stmt: rusqlite::Statement<'a>,
-    conn: &'a Connection,
-}
-
-impl HourInserter<'_> {
-    /// Insert one row. Binds by position without `dyn ToSql`: this is the
-    /// hot path of a fleet-year import.
-    pub fn insert(
-        &mut self,
-        batch_id: i64,
-        line: usize,
-        unit_no: i64,
-        row: &HourRow,
-    ) -> Result<i64> {
-        let s = &mut self.stmt;
-        s.raw_bind_parameter(1, batch_id)?;
-        s.raw_bind_parameter(2, line as i64)?;
-        s.raw_bind_parameter(3, unit_no)?;
-        s.raw_bind_parameter(4, row.hour)?;
-        s.raw_bind_parameter(5, row.op_time_centi)?;
-        for (i, v) in row.readings.iter().enumerate() {
-            s.raw_bind_parameter(6 + i, *v)?;
-        }
-        s.raw_execute()?;
-        Ok(self.conn.last_insert_rowid())
+/// Hand on the rows in force of `pending` in hour order; false once `f` is done.
+fn emit(
+    pending: &mut Vec<(i64, HourRow)>,
+    merge: bool,
+    f: &mut impl FnMut(&HourRow) -> bool,
+) -> bool {
+    if merge {
+        // Stable, and each block's rows already ascend: cheap for sorted runs.
+        pending.sort_by_key(|(block, row)| (row.hour, *block));
     }
+    let mut going = true;
+    for (i, (_, row)) in pending.iter().enumerate() {
+        let superseded = pending
+            .get(i + 1)
+            .is_some_and(|(_, next)| next.hour == row.hour);
+        if !superseded && !f(row) {
+            going = false;
+            break;
+        }
+    }
+    pending.clear();
+    going
 }

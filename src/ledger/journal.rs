@@ -345,7 +345,7 @@ pub struct Certified {
 }
 
 /// The hour index (hours since 1970-01-01T00:00 local standard time, as
-/// schema/0002_hourly.sql stores it) at which `year` begins.
+/// schema/0005_hourly_blocks.sql stores it) at which `year` begins.
 fn year_start_hour(year: i32) -> i64 {
     let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).expect("valid date");
     let start = chrono::NaiveDate::from_ymd_opt(year, 1, 1).expect("year in range");
@@ -363,7 +363,7 @@ fn touches(conn: &Connection, ranges: &[RowRange], year: i32) -> Result<bool> {
             "fuel_records",
             "(substr(start_date, 1, 4) = ?2 OR substr(end_date, 1, 4) = ?2)",
         ),
-        ("hourly", "hour >= ?3 AND hour < ?4"),
+        ("hourly_blocks", "last_hour >= ?3 AND first_hour < ?4"),
     ];
     for (table, test) in checks {
         let Some(r) = range(ranges, table) else {

@@ -12,6 +12,10 @@ pub const MIGRATIONS: &[(&str, &str)] = &[
         "0004_journal",
         include_str!("../../schema/0004_journal.sql"),
     ),
+    (
+        "0005_hourly_blocks",
+        include_str!("../../schema/0005_hourly_blocks.sql"),
+    ),
 ];
 
 /// Our own SQLite `application_id`: the ASCII bytes "FLUE". A file without

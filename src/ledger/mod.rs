@@ -7,6 +7,7 @@
 //! are only ever inserted.
 
 mod allowances;
+mod blocks;
 mod history;
 mod hourly;
 mod journal;
@@ -14,8 +15,9 @@ pub mod migrations;
 mod rows;
 
 pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use blocks::{BlockBuilder, BLOCK_ROWS};
 pub use history::{Fields, HistoryReads, Provenance, StoredVersion};
-pub use hourly::{HourSource, HourlyReads};
+pub use hourly::{HeldHours, HourSource, HourlyReads};
 pub use journal::{
     schema_digest, Amendment, Certification, Certified, JournalReads, Problem, Verification,
 };
@@ -30,6 +32,8 @@ pub use rows::{BatchSummary, NewBatch, Reads, SiteVersion};
 
 /// The schema version that added the journal (schema/0004_journal.sql).
 const JOURNAL_VERSION: i32 = 4;
+/// The schema version that first keeps hourly rows in blocks (schema/0005_hourly_blocks.sql).
+const BLOCKS_VERSION: i32 = 5;
 
 /// Page cache of a write transaction, KiB.
 const WRITE_CACHE_KIB: u32 = 64 * 1024;
@@ -61,6 +65,10 @@ pub enum LedgerError {
         found: i32,
         known: i32,
     },
+    #[error(
+        "{0} holds hourly rows in the per-row layout of a development build of flue; this flue keeps them in blocks and will not drop them: re-import the hourly files into a new ledger"
+    )]
+    RowLayout(PathBuf),
     #[error("the ledger is locked by another process (waited {}s)", BUSY_TIMEOUT.as_secs())]
     Busy,
     #[error("the ledger is read-only: {0}")]
@@ -247,6 +255,13 @@ impl Ledger {
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)?;
         let from: i32 = tx.query_row("PRAGMA user_version", [], |r| r.get(0))?;
+        if (2..BLOCKS_VERSION).contains(&from) {
+            let rows: bool =
+                tx.query_row("SELECT EXISTS (SELECT 1 FROM hourly)", [], |r| r.get(0))?;
+            if rows {
+                return Err(LedgerError::RowLayout(self.path.clone()));
+            }
+        }
         for (_, sql) in &MIGRATIONS[from as usize..] {
             tx.execute_batch(sql)?;
         }
@@ -357,6 +372,57 @@ mod tests {
             Err(LedgerError::NotFound(_))
         ));
         assert!(!dir.path().join("missing.db").exists());
+    }
+
+    /// A schema-4 ledger: the migrations before hourly blocks.
+    fn version_4_ledger(path: &Path, hourly_row: bool) {
+        let conn = Connection::open(path).unwrap();
+        for (_, sql) in &MIGRATIONS[..4] {
+            conn.execute_batch(sql).unwrap();
+        }
+        if hourly_row {
+            conn.execute_batch(
+                "INSERT INTO hourly (batch_id, line, unit_no, hour, op_time) VALUES (1, 2, 1, 480000, 100)",
+            )
+            .unwrap();
+        }
+        conn.execute_batch(&format!(
+            "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = 4;"
+        ))
+        .unwrap();
+    }
+
+    #[test]
+    fn per_row_hourly_tables_migrate_to_blocks_only_when_empty() {
+        let dir = tempfile::tempdir().unwrap();
+        let empty = dir.path().join("empty.db");
+        version_4_ledger(&empty, false);
+        let ledger = Ledger::open(&empty).unwrap();
+        assert_eq!(ledger.user_version().unwrap(), latest_version());
+        let tables: i64 = ledger
+            .conn
+            .query_row(
+                "SELECT count(*) FROM sqlite_master WHERE name IN ('hourly', 'hourly_corrections')",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(tables, 0);
+        let v = ledger.verify().unwrap();
+        assert!(v.problems.is_empty(), "{:?}", v.problems);
+
+        let held = dir.path().join("held.db");
+        version_4_ledger(&held, true);
+        let before = std::fs::read(&held).unwrap();
+        assert!(matches!(
+            Ledger::open(&held),
+            Err(LedgerError::RowLayout(_))
+        ));
+        assert_eq!(
+            std::fs::read(&held).unwrap(),
+            before,
+            "a refused upgrade wrote"
+        );
     }
 
     #[test]
