@@ -185,6 +185,32 @@ pub fn hour_label(hour: i64) -> String {
         .to_string()
 }
 
+/// Days from 1970-01-01 to `year-month-day` in the proleptic Gregorian
+/// calendar, by the usual era arithmetic (400-year eras of 146,097 days,
+/// years counted from March so the leap day falls last). The caller checks
+/// that the date exists (`days_in_month`); tests compare with chrono.
+pub fn days_from_civil(year: i32, month: u32, day: u32) -> i64 {
+    let y = i64::from(year) - i64::from(month <= 2);
+    let era = y.div_euclid(400);
+    let yoe = y - era * 400;
+    let m = i64::from(month);
+    let doy = (153 * (if m > 2 { m - 3 } else { m + 9 }) + 2) / 5 + i64::from(day) - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+/// Days in `month` of `year` (Gregorian leap years); 0 for a month out of range.
+pub fn days_in_month(year: i32, month: u32) -> u32 {
+    let leap = (year % 4 == 0 && year % 100 != 0) || year % 400 == 0;
+    match month {
+        1 | 3 | 5 | 7 | 8 | 10 | 12 => 31,
+        4 | 6 | 9 | 11 => 30,
+        2 if leap => 29,
+        2 => 28,
+        _ => 0,
+    }
+}
+
 /// The hour index of a local standard time `YYYY-MM-DDTHH:00`.
 pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
     let epoch = NaiveDate::from_ymd_opt(1970, 1, 1)
@@ -192,4 +218,23 @@ pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
         .and_hms_opt(0, 0, 0)
         .expect("valid time");
     (t - epoch).num_hours()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        // The calendar arithmetic agrees with chrono's on every date it knows.
+        #[test]
+        fn days_from_civil_agrees_with_chrono(year in 0i32..=9999, month in 1u32..=12, day in 1u32..=31) {
+            let chrono_date = NaiveDate::from_ymd_opt(year, month, day);
+            prop_assert_eq!(chrono_date.is_some(), day <= days_in_month(year, month));
+            if let Some(date) = chrono_date {
+                let epoch = NaiveDate::from_ymd_opt(1970, 1, 1).unwrap();
+                prop_assert_eq!(days_from_civil(year, month, day), (date - epoch).num_days());
+            }
+        }
+    }
 }

@@ -11,8 +11,9 @@ use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERROR
 use crate::decimal::{parse_fixed, FixedError};
 use crate::emissions::method::Method;
 use crate::ledger::{BlockBuilder, HeldHours, HourlyReads, Ledger, NewBatch, Reads};
-use crate::records::{hour_index, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE};
-use chrono::{Datelike, NaiveDateTime};
+use crate::records::{
+    days_from_civil, days_in_month, hour_label, HourRow, Reading, OP_TIME_SCALE, READING_SCALE,
+};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 use std::io::{BufRead, BufReader, Read};
@@ -23,18 +24,30 @@ pub const REQUIRED: &[&str] = &["unit", "hour", "op_time"];
 /// Hours in a leap year: 366 days × 24.
 const HOURS_PER_YEAR_MAX: usize = 8784;
 
-/// A reader that hashes what passes through it.
+/// The bytes read from the file and not yet hashed: the parsing thread
+/// reads, the writing thread hashes, so the two cores share the work.
+type Unhashed = std::sync::Arc<std::sync::Mutex<Vec<u8>>>;
+
+/// A reader that keeps a copy of what passes through it for hashing.
 struct Hashing<R> {
     inner: R,
-    hasher: Sha256,
+    unhashed: Unhashed,
 }
 
 impl<R: Read> Read for Hashing<R> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
         let n = self.inner.read(buf)?;
-        self.hasher.update(&buf[..n]);
+        self.unhashed
+            .lock()
+            .expect("no thread panics holding it")
+            .extend_from_slice(&buf[..n]);
         Ok(n)
     }
+}
+
+/// Take the bytes read so far, in order, for the hasher.
+fn take(unhashed: &Unhashed) -> Vec<u8> {
+    std::mem::take(&mut *unhashed.lock().expect("no thread panics holding it"))
 }
 
 /// Where each column of the header sits.
@@ -94,9 +107,9 @@ impl Errors {
     }
 }
 
-/// Parse `YYYY-MM-DDTHH:00` by hand: chrono's format parser costs more
-/// than the rest of the row.
-fn parse_hour(text: &str) -> Result<NaiveDateTime, String> {
+/// Parse `YYYY-MM-DDTHH:00` by hand into its year and hour index: chrono's
+/// format parser costs more than the rest of the row.
+fn parse_hour(text: &str) -> Result<(i32, i64), String> {
     let b = text.as_bytes();
     let shape = "not in the form YYYY-MM-DDTHH:00";
     if b.len() != 16 || b[4] != b'-' || b[7] != b'-' || b[10] != b'T' || &b[13..] != b":00" {
@@ -111,10 +124,11 @@ fn parse_hour(text: &str) -> Result<NaiveDateTime, String> {
             }
         })
     };
-    let (y, m, d, h) = (num(0..4)?, num(5..7)?, num(8..10)?, num(11..13)?);
-    chrono::NaiveDate::from_ymd_opt(y as i32, m, d)
-        .and_then(|date| date.and_hms_opt(h, 0, 0))
-        .ok_or_else(|| "not a real hour".into())
+    let (y, m, d, h) = (num(0..4)? as i32, num(5..7)?, num(8..10)?, num(11..13)?);
+    if d == 0 || d > days_in_month(y, m) || h > 23 {
+        return Err("not a real hour".into());
+    }
+    Ok((y, days_from_civil(y, m, d) * 24 + i64::from(h)))
 }
 
 fn fixed_message(e: FixedError) -> String {
@@ -141,7 +155,7 @@ fn parse_record<'r>(
         );
     }
     let hour = match parse_hour(rec.get(layout.hour)) {
-        Ok(t) => Some((t.year(), hour_index(t))),
+        Ok(t) => Some(t),
         Err(why) => {
             fail(
                 layout.hour,
@@ -308,6 +322,8 @@ struct Parsed {
 /// What the parsing thread sends: rows, units first seen, and row errors.
 #[derive(Default)]
 struct Chunk {
+    /// The file's bytes read since the last chunk, for its digest.
+    raw: Vec<u8>,
     rows: Vec<Parsed>,
     new_units: Vec<String>,
     errors: Vec<RowError>,
@@ -317,6 +333,7 @@ struct Chunk {
 /// Runs on its own thread, so parsing overlaps the inserts (2 cores).
 fn parse_records<R: BufRead>(
     mut reader: Reader<R>,
+    unhashed: &Unhashed,
     layout: &Layout,
     out: std::sync::mpsc::SyncSender<Chunk>,
 ) {
@@ -361,10 +378,14 @@ fn parse_records<R: BufRead>(
             year,
             row,
         });
-        if chunk.rows.len() == CHUNK_ROWS && out.send(std::mem::take(&mut chunk)).is_err() {
-            return; // The writer stopped: nothing more is wanted.
+        if chunk.rows.len() == CHUNK_ROWS {
+            chunk.raw = take(unhashed);
+            if out.send(std::mem::take(&mut chunk)).is_err() {
+                return; // The writer stopped: nothing more is wanted.
+            }
         }
     }
+    chunk.raw = take(unhashed);
     let _ = out.send(chunk);
 }
 
@@ -384,11 +405,13 @@ pub fn import_named(
     }
     let file = std::fs::File::open(path)
         .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
+    let unhashed = Unhashed::default();
+    let mut hasher = Sha256::new();
     let mut input = BufReader::with_capacity(
         1 << 20,
         Hashing {
             inner: file,
-            hasher: Sha256::new(),
+            unhashed: unhashed.clone(),
         },
     );
     ledger.write(|tx| {
@@ -424,8 +447,10 @@ pub fn import_named(
             // Owned here, so an early return drops it and the parser stops.
             let receive = receive;
             let layout = &layout;
-            scope.spawn(move || parse_records(reader, layout, send));
+            let unhashed = &unhashed;
+            scope.spawn(move || parse_records(reader, unhashed, layout, send));
             for chunk in receive.iter() {
+                hasher.update(&chunk.raw);
                 for e in chunk.errors {
                     errors.push(e);
                 }
@@ -463,7 +488,7 @@ pub fn import_named(
                             continue;
                         }
                     };
-                    let year_start = crate::compute::hourly::year_start_hour(year);
+                    let year_start = days_from_civil(year, 1, 1) * 24;
                     let slot = &mut state
                         .lines
                         .entry(year)
@@ -569,7 +594,8 @@ pub fn import_named(
         if done.added + done.corrected == 0 {
             return Ok(done);
         }
-        let sha256 = super::hex(&input.get_ref().hasher.clone().finalize());
+        hasher.update(take(&unhashed));
+        let sha256 = super::hex(&hasher.finalize());
         let written = tx.insert_batch(&NewBatch {
             kind: "hourly",
             file_name: &name,
