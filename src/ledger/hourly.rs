@@ -320,9 +320,10 @@ impl Ledger {
 }
 
 /// Stream the hours in force of `unit` over `[from, to)` in hour order
-/// while `f` returns true. Blocks whose hours overlap (corrections, or a
-/// file out of hour order) are merged: of the rows of one hour, the one
-/// from the block with the highest id is in force.
+/// while `f` returns true. A block whose hours overlap no other streams
+/// straight through; blocks whose hours overlap (corrections, or a file out
+/// of hour order) are merged: of the rows of one hour, the one from the
+/// block with the highest id is in force.
 fn each_hour(
     conn: &Connection,
     unit: &str,
@@ -330,39 +331,46 @@ fn each_hour(
     to: i64,
     f: &mut impl FnMut(&HourRow) -> bool,
 ) -> Result<()> {
-    // Rows of blocks that may overlap, with their block id.
+    let blocks = blocks_over(conn, unit, from, to)?;
     let mut pending: Vec<(i64, HourRow)> = Vec::new();
-    let mut pending_blocks = 0usize;
-    let mut reach = i64::MIN;
-    for block in blocks_over(conn, unit, from, to)? {
-        if pending_blocks > 0 && block.head.first_hour > reach {
-            if !emit(&mut pending, pending_blocks > 1, f) {
-                return Ok(());
-            }
-            pending_blocks = 0;
+    let mut start = 0;
+    while start < blocks.len() {
+        // The run of blocks whose hour ranges chain into one another.
+        let mut end = start + 1;
+        let mut reach = blocks[start].head.last_hour;
+        while end < blocks.len() && blocks[end].head.first_hour <= reach {
+            reach = reach.max(blocks[end].head.last_hour);
+            end += 1;
         }
-        block.each(|r| {
-            if r.row.hour >= from && r.row.hour < to {
-                pending.push((block.id, r.row));
+        let mut going = true;
+        if end == start + 1 {
+            blocks[start].each(|r| {
+                if going && r.row.hour >= from && r.row.hour < to {
+                    going = f(&r.row);
+                }
+            })?;
+        } else {
+            for block in &blocks[start..end] {
+                block.each(|r| {
+                    if r.row.hour >= from && r.row.hour < to {
+                        pending.push((block.id, r.row));
+                    }
+                })?;
             }
-        })?;
-        pending_blocks += 1;
-        reach = reach.max(block.head.last_hour);
+            going = emit(&mut pending, f);
+        }
+        if !going {
+            return Ok(());
+        }
+        start = end;
     }
-    emit(&mut pending, pending_blocks > 1, f);
     Ok(())
 }
 
 /// Hand on the rows in force of `pending` in hour order; false once `f` is done.
-fn emit(
-    pending: &mut Vec<(i64, HourRow)>,
-    merge: bool,
-    f: &mut impl FnMut(&HourRow) -> bool,
-) -> bool {
-    if merge {
-        // Stable, and each block's rows already ascend: cheap for sorted runs.
-        pending.sort_by_key(|(block, row)| (row.hour, *block));
-    }
+fn emit(pending: &mut Vec<(i64, HourRow)>, f: &mut impl FnMut(&HourRow) -> bool) -> bool {
+    // Stable, and each block's rows already ascend: cheap for sorted runs.
+    pending.sort_by_key(|(block, row)| (row.hour, *block));
     let mut going = true;
     for (i, (_, row)) in pending.iter().enumerate() {
         let superseded = pending
