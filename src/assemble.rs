@@ -95,13 +95,14 @@ fn hourly_years(
         }
         return Ok(out);
     };
+    let as_of = r.as_of();
     let next = std::sync::atomic::AtomicUsize::new(0);
     let done = std::sync::Mutex::new(Vec::new());
     std::thread::scope(|scope| -> Result<(), LedgerError> {
         let workers: Vec<_> = (0..threads)
             .map(|_| {
                 scope.spawn(|| -> Result<(), LedgerError> {
-                    let ledger = crate::ledger::Ledger::open(path)?;
+                    let ledger = crate::ledger::Ledger::open_reader(path, as_of)?;
                     loop {
                         let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
                         let Some(&i) = hourly.get(k) else {

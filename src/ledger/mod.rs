@@ -7,6 +7,7 @@
 //! are only ever inserted.
 
 mod allowances;
+mod as_of;
 mod history;
 mod hourly;
 mod journal;
@@ -14,6 +15,7 @@ pub mod migrations;
 mod rows;
 
 pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use as_of::{AsOfEntry, AsOfError, AsOfPoint};
 pub use history::{Fields, HistoryReads, Provenance, StoredVersion};
 pub use hourly::{HourSource, HourlyReads};
 pub use journal::{
@@ -80,6 +82,8 @@ pub enum LedgerError {
     Certified { year: i32, by: String, at: String },
     #[error("year {year} is already certified (by {by} on {at}); a change to it is an amendment: import with --correct REASON --amend")]
     AlreadyCertified { year: i32, by: String, at: String },
+    #[error(transparent)]
+    AsOf(#[from] as_of::AsOfError),
     #[error("ledger error: {0}")]
     Sqlite(rusqlite::Error),
 }
@@ -108,6 +112,8 @@ pub struct Ledger {
     path: PathBuf,
     /// The reason a write may touch a certified year (`--correct R --amend`).
     amend: Option<String>,
+    /// The journal entry every read stops at (`--as-of`; src/ledger/as_of.rs).
+    as_of: Option<i64>,
 }
 
 /// A write transaction. Dropped without `commit`, it rolls back.
@@ -181,6 +187,7 @@ impl Ledger {
             conn,
             path: path.to_path_buf(),
             amend: None,
+            as_of: None,
         })
     }
 
@@ -209,6 +216,7 @@ impl Ledger {
             conn,
             path: path.to_path_buf(),
             amend: None,
+            as_of: None,
         };
         let version = ledger
             .user_version()
