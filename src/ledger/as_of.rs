@@ -20,7 +20,7 @@
 use super::journal::{covered, quoted};
 use super::{Ledger, LedgerError, Result};
 use chrono::{DateTime, FixedOffset, NaiveDateTime, TimeZone, Utc};
-use rusqlite::Connection;
+use rusqlite::{Connection, OptionalExtension};
 use thiserror::Error;
 
 /// Where `--as-of` points: a journal entry, or a moment (the last entry
@@ -214,6 +214,19 @@ impl Ledger {
         install(&ledger.conn, entry.seq)?;
         ledger.as_of = Some(entry.seq);
         Ok((ledger, entry))
+    }
+
+    /// The journal entry that added row `rowid` of `table`: the entry whose
+    /// `journal_rows` range for the table covers it.
+    pub fn entry_adding(&self, table: &str, rowid: i64) -> Result<Option<i64>> {
+        Ok(self
+            .conn
+            .query_row(
+                "SELECT seq FROM journal_rows WHERE table_name = ?1 AND ?2 BETWEEN first_rowid AND last_rowid",
+                rusqlite::params![table, rowid],
+                |r| r.get(0),
+            )
+            .optional()?)
     }
 
     /// Another connection that reads what this one reads: for a parallel
