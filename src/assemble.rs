@@ -95,13 +95,14 @@ fn hourly_years(
         }
         return Ok(out);
     };
+    let as_of = r.as_of();
     let next = std::sync::atomic::AtomicUsize::new(0);
     let done = std::sync::Mutex::new(Vec::new());
     std::thread::scope(|scope| -> Result<(), LedgerError> {
         let workers: Vec<_> = (0..threads)
             .map(|_| {
                 scope.spawn(|| -> Result<(), LedgerError> {
-                    let ledger = crate::ledger::Ledger::open(path)?;
+                    let ledger = crate::ledger::Ledger::open_reader(path, as_of)?;
                     loop {
                         let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
                         let Some(&i) = hourly.get(k) else {
@@ -179,18 +180,32 @@ pub fn hour_out(
     rounding: Rounding,
     hour: i64,
 ) -> Result<Option<crate::emissions::substitute::HourOut>, String> {
+    Ok(hours_out(r, unit, rounding, hour, hour + 1)?.and_then(|mut outs| outs.pop()))
+}
+
+/// The unit-hours `from..to` as the hourly engine computed them, in hour
+/// order, streamed from the unit's first stored hour as a report streams
+/// them; `None` for a unit without stored hours.
+pub fn hours_out(
+    r: &(impl Reads + ?Sized),
+    unit: &Unit,
+    rounding: Rounding,
+    from: i64,
+    to: i64,
+) -> Result<Option<Vec<crate::emissions::substitute::HourOut>>, String> {
     let Some(present) = r.hourly_present(&unit.id).map_err(|e| e.to_string())? else {
         return Ok(None);
     };
     let config = stream_config_with(unit, rounding, &present, unit_f_factors(r, unit)?)?;
     let mut stream = crate::emissions::substitute::UnitStream::new(config)
         .map_err(|e| format!("unit {}: {e}", unit.id))?;
-    let mut found = None;
+    let mut found = Vec::new();
+    let mut done = false;
     let mut failed: Option<String> = None;
-    // Hours after the one asked for are streamed too: a gap's substitute
+    // Hours after those asked for are streamed too: a gap's substitute
     // needs the hour after the gap.
     r.each_hour(&unit.id, i64::MIN, i64::MAX, |row| {
-        if found.is_some() || failed.is_some() {
+        if done || failed.is_some() {
             return;
         }
         if let Err(e) = stream.push(row.hour, crate::compute::hourly::hour_input(row)) {
@@ -198,8 +213,9 @@ pub fn hour_out(
             return;
         }
         while let Some(out) = stream.next_ready() {
-            if out.clock_hour == hour {
-                found = Some(out);
+            done |= out.clock_hour >= to - 1;
+            if (from..to).contains(&out.clock_hour) {
+                found.push(out);
             }
         }
     })
@@ -207,17 +223,17 @@ pub fn hour_out(
     if let Some(e) = failed {
         return Err(e);
     }
-    if found.is_none() {
+    if !done {
         stream
             .finish()
             .map_err(|e| format!("unit {}: {e}", unit.id))?;
         while let Some(out) = stream.next_ready() {
-            if out.clock_hour == hour {
-                found = Some(out);
+            if (from..to).contains(&out.clock_hour) {
+                found.push(out);
             }
         }
     }
-    Ok(found)
+    Ok(Some(found))
 }
 
 /// A unit's F-factors: from its `f_factors_sample`'s ultimate analysis

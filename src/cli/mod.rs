@@ -83,7 +83,7 @@ pub enum Command {
     Allowances(allowances::AllowancesCommand),
     /// How a figure was computed: equations, constants and input rows.
     #[command(
-        after_help = "Examples:\n  flue explain so2 --unit K2 --hour 2025-06-17T05:00\n  flue explain nox --unit K1 --year 2025 --format json"
+        after_help = "Examples:\n  flue explain so2 --unit K1 --year 2025\n  flue explain nox --unit K1 --month 2025-03 --format json\n  flue explain so2 --unit K2 --month 2025-06\n  flue explain so2 --unit K2 --hour 2025-06-17T05:00\n\nLevels: --year (quarters, months, fuel records), --month (a month's fuel records with\ntheir analyses, or a CEMS unit's hours), --hour (one hour's inputs and steps). Every\nlevel's `amount` (MMBtu or lb) is the sum of the amounts below it; inputs name their\nfile, line, sha256 and the journal entry that added them."
     )]
     Explain(explain::ExplainArgs),
     /// Every stored version of one record, oldest first: values, file, line, sha256, who, when and why.

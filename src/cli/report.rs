@@ -1,5 +1,5 @@
-use crate::ledger::{JournalReads, Ledger, Reads};
-use crate::report::model::{AmendmentView, CertificationView, JournalView};
+use crate::ledger::{AsOfPoint, JournalReads, Ledger, Reads};
+use crate::report::model::{AmendmentView, AsOfView, CertificationView, JournalView};
 use crate::report::{self, AnnualReport, Format};
 use anyhow::{anyhow, bail};
 use clap::{Args, Subcommand};
@@ -9,12 +9,12 @@ use std::path::{Path, PathBuf};
 pub enum ReportCommand {
     /// A facility's year: heat input and SO2, NOx and CO2 tons per unit, by quarter and ozone season.
     #[command(
-        after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv\n  flue report annual --year 2025 --format html --out mc1-2025.html"
+        after_help = "Examples:\n  flue report annual --year 2025\n  flue report annual --year 2025 --format json --out mc1-2025.json\n  flue report annual --year 2025 --format csv > mc1-2025.csv\n  flue report annual --year 2025 --format html --out mc1-2025.html\n  flue report annual --year 2025 --as-of 12\n  flue report annual --year 2025 --as-of 2026-02-15T17:00 --format json\n\n--as-of reports the ledger as it stood right after one journal entry (numbered as\n`flue verify` counts them), or at a moment: the last entry recorded at or before it."
     )]
     Annual(AnnualArgs),
     /// One calendar quarter and the year to its end, per unit.
     #[command(
-        after_help = "Examples:\n  flue report quarter --year 2025 --quarter 3\n  flue report quarter --year 2025 --quarter 2 --format csv"
+        after_help = "Examples:\n  flue report quarter --year 2025 --quarter 3\n  flue report quarter --year 2025 --quarter 2 --format csv\n  flue report quarter --year 2025 --quarter 4 --as-of 2026-01-31T23:59:59Z"
     )]
     Quarter(QuarterArgs),
 }
@@ -36,6 +36,11 @@ pub struct QuarterArgs {
     /// The facility, where the ledger holds more than one.
     #[arg(long)]
     pub facility: Option<String>,
+    /// The report as it stood right after journal entry ENTRY, or at DATETIME
+    /// (the last entry recorded at or before it; RFC 3339, or
+    /// YYYY-MM-DDTHH:MM[:SS] in UTC).
+    #[arg(long, value_name = "ENTRY|DATETIME")]
+    pub as_of: Option<AsOfPoint>,
 }
 
 #[derive(Debug, Args)]
@@ -54,10 +59,32 @@ pub struct AnnualArgs {
     /// The facility, where the ledger holds more than one.
     #[arg(long)]
     pub facility: Option<String>,
+    /// The report as it stood right after journal entry ENTRY, or at DATETIME
+    /// (the last entry recorded at or before it; RFC 3339, or
+    /// YYYY-MM-DDTHH:MM[:SS] in UTC).
+    #[arg(long, value_name = "ENTRY|DATETIME")]
+    pub as_of: Option<AsOfPoint>,
 }
 
 pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
-    let ledger = Ledger::open(ledger_path)?;
+    let point = match cmd {
+        ReportCommand::Annual(args) => args.as_of.as_ref(),
+        ReportCommand::Quarter(args) => args.as_of.as_ref(),
+    };
+    // An as-of report reads a read-only connection cut at the entry
+    // (src/ledger/as_of.rs); the same code computes it.
+    let (ledger, as_of) = match point {
+        Some(point) => {
+            let (ledger, e) = Ledger::open_as_of(ledger_path, point)?;
+            let view = AsOfView {
+                seq: e.seq,
+                at: e.at,
+                hash: e.hash,
+            };
+            (ledger, Some(view))
+        }
+        None => (Ledger::open(ledger_path)?, None),
+    };
     match cmd {
         ReportCommand::Annual(args)
             if args.facility.is_none() && ledger.latest_sites()?.len() > 1 =>
@@ -65,7 +92,11 @@ pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
             if args.format == Format::Html {
                 bail!("the HTML report is one facility's document: pass --facility");
             }
-            let model = fleet_report(&ledger, args.year)?;
+            let mut model = fleet_report(&ledger, args.year)?;
+            for f in &mut model.facilities {
+                f.as_of.clone_from(&as_of);
+            }
+            model.as_of = as_of;
             super::emit(args.out.as_deref(), args.force, |w| {
                 report::render_fleet(&model, args.format, w)
             })
@@ -78,12 +109,14 @@ pub fn run(cmd: &ReportCommand, ledger_path: &Path) -> super::Outcome {
                 entries,
                 head_sha256,
             });
+            model.as_of = as_of;
             super::emit(args.out.as_deref(), args.force, |w| {
                 report::render(&model, args.format, w)
             })
         }
         ReportCommand::Quarter(args) => {
-            let annual = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            let mut annual = annual_report(&ledger, args.facility.as_deref(), args.year)?;
+            annual.as_of = as_of;
             let model = report::model::quarter(&annual, args.quarter);
             super::emit(args.out.as_deref(), args.force, |w| {
                 report::render_quarter(&model, args.format, w)
@@ -151,6 +184,7 @@ pub fn fleet_report(ledger: &Ledger, year: i32) -> anyhow::Result<report::model:
         year,
         facilities,
         fleet: report::model::totals(&fleet),
+        as_of: None,
         caution: report::CAUTION,
     })
 }

@@ -17,11 +17,11 @@ use rusqlite::{params, Connection, OptionalExtension};
 use std::collections::BTreeMap;
 
 /// Tables the journal does not cover: itself, and SQLite's own.
-fn covered(name: &str) -> bool {
+pub(super) fn covered(name: &str) -> bool {
     name != "journal" && name != "journal_rows" && !name.starts_with("sqlite_")
 }
 
-fn quoted(name: &str) -> String {
+pub(super) fn quoted(name: &str) -> String {
     format!("\"{}\"", name.replace('"', "\"\""))
 }
 

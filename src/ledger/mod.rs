@@ -7,6 +7,7 @@
 //! are only ever inserted.
 
 mod allowances;
+mod as_of;
 mod blocks;
 mod history;
 mod hourly;
@@ -15,6 +16,7 @@ pub mod migrations;
 mod rows;
 
 pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use as_of::{AsOfEntry, AsOfError, AsOfPoint};
 pub use blocks::{BlockBuilder, BLOCK_ROWS};
 pub use history::{Fields, HistoryReads, Provenance, StoredVersion};
 pub use hourly::{HeldHours, HourSource, HourlyReads};
@@ -88,6 +90,8 @@ pub enum LedgerError {
     Certified { year: i32, by: String, at: String },
     #[error("year {year} is already certified (by {by} on {at}); a change to it is an amendment: import with --correct REASON --amend")]
     AlreadyCertified { year: i32, by: String, at: String },
+    #[error(transparent)]
+    AsOf(#[from] as_of::AsOfError),
     #[error("ledger error: {0}")]
     Sqlite(rusqlite::Error),
 }
@@ -116,6 +120,8 @@ pub struct Ledger {
     path: PathBuf,
     /// The reason a write may touch a certified year (`--correct R --amend`).
     amend: Option<String>,
+    /// The journal entry every read stops at (`--as-of`; src/ledger/as_of.rs).
+    as_of: Option<i64>,
 }
 
 /// A write transaction. Dropped without `commit`, it rolls back.
@@ -189,6 +195,7 @@ impl Ledger {
             conn,
             path: path.to_path_buf(),
             amend: None,
+            as_of: None,
         })
     }
 
@@ -217,6 +224,7 @@ impl Ledger {
             conn,
             path: path.to_path_buf(),
             amend: None,
+            as_of: None,
         };
         let version = ledger
             .user_version()

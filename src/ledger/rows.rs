@@ -83,6 +83,12 @@ pub trait Reads {
         None
     }
 
+    /// The journal entry reads stop at (`--as-of`), for a parallel reader
+    /// of `file()` to see the same ledger; `None` for the ledger as it is.
+    fn as_of(&self) -> Option<i64> {
+        None
+    }
+
     /// The latest site version of every facility.
     fn latest_sites(&self) -> Result<Vec<SiteVersion>> {
         let mut stmt = self.conn().prepare(
@@ -253,6 +259,10 @@ impl Reads for Ledger {
 
     fn file(&self) -> Option<&std::path::Path> {
         Some(&self.path)
+    }
+
+    fn as_of(&self) -> Option<i64> {
+        self.as_of
     }
 }
 

@@ -1,7 +1,7 @@
 //! CSV for machines: one header, stable column names, one row per unit and
 //! period, full precision, and text cells made safe for spreadsheets.
 
-use super::model::{AnnualReport, Period};
+use super::model::{AnnualReport, AsOfView, Period};
 use rust_decimal::Decimal;
 use serde_json::Value;
 use std::fmt::Write;
@@ -135,9 +135,29 @@ fn row(
     );
 }
 
+/// The as-of row: the entry the report stops at, in words, where the note
+/// row carries the caution.
+fn as_of_row(out: &mut String, a: &AsOfView, facility: &str, year: i32, tail: &str) {
+    let _ = writeln!(
+        out,
+        "as-of,{},{year},{},,,,,{tail}",
+        text_cell(facility),
+        text_cell(&a.sentence())
+    );
+}
+
 pub fn annual(r: &AnnualReport) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "{ANNUAL_COLUMNS}");
+    if let Some(a) = &r.as_of {
+        as_of_row(
+            &mut out,
+            a,
+            &r.facility,
+            r.year,
+            &format!(",{}", no_program()),
+        );
+    }
     for u in &r.units {
         let year = u.year_period();
         row(
@@ -223,9 +243,16 @@ pub fn annual(r: &AnnualReport) -> String {
 pub fn fleet(r: &super::model::FleetReport) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "{ANNUAL_COLUMNS}");
+    if let Some(a) = &r.as_of {
+        as_of_row(&mut out, a, "", r.year, &format!(",{}", no_program()));
+    }
     for f in &r.facilities {
         let text = annual(f);
-        for line in text.lines().skip(1).filter(|l| !l.starts_with("note,")) {
+        for line in text
+            .lines()
+            .skip(1)
+            .filter(|l| !l.starts_with("note,") && !l.starts_with("as-of,"))
+        {
             out.push_str(line);
             out.push('\n');
         }
@@ -285,6 +312,9 @@ pub fn quarter(r: &super::model::QuarterReport) -> String {
         out,
         "scope,facility,year,unit,period,heat_input_mmbtu,so2_tons,nox_tons,co2_tons"
     );
+    if let Some(a) = &r.as_of {
+        as_of_row(&mut out, a, &r.facility, r.year, "");
+    }
     for (scope, u) in r
         .units
         .iter()

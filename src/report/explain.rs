@@ -38,6 +38,8 @@ pub struct RowSource {
     pub file: String,
     pub line: usize,
     pub sha256: String,
+    /// The journal entry that added the row (`null` where not looked up).
+    pub journal_seq: Option<i64>,
 }
 
 /// How a substituted value was chosen.
@@ -213,6 +215,7 @@ pub fn hour(
         file: source.file.clone(),
         line: source.line,
         sha256: source.sha256.clone(),
+        journal_seq: None,
     };
     let mut inputs = vec![Input {
         name: "op_time".into(),
@@ -319,10 +322,13 @@ pub fn hour_text(e: &HourExplanation) -> String {
     for i in &e.inputs {
         let from = match &i.source {
             Some(s) => format!(
-                "{}:{} (sha256 {})",
+                "{}:{} (sha256 {}{})",
                 s.file,
                 s.line,
-                &s.sha256[..12.min(s.sha256.len())]
+                &s.sha256[..12.min(s.sha256.len())],
+                s.journal_seq
+                    .map(|n| format!(", journal entry {n}"))
+                    .unwrap_or_default()
             ),
             None => "supplied by the missing-data rules".into(),
         };
@@ -351,4 +357,73 @@ pub fn hour_text(e: &HourExplanation) -> String {
     }
     let _ = writeln!(out, "Caution: {}", e.caution);
     out
+}
+
+/// The constants a fuel record's calculation uses, each with its source
+/// (the same constants src/emissions/fuel_based.rs cites), and the site
+/// file's own factor or rate where the method takes one.
+pub fn record_constants(
+    method: &crate::emissions::method::Method,
+    fuel: crate::emissions::fuel::Fuel,
+    gas_volume: bool,
+) -> Vec<Constant> {
+    use crate::emissions::constants as c;
+    use crate::emissions::method::Method;
+    let constant = |name, value, source: &str| Constant {
+        name,
+        value,
+        source: source.to_string(),
+    };
+    match method {
+        Method::Fuel => vec![constant(
+            "Btu per MMBtu",
+            crate::units::BTU_PER_MMBTU,
+            "40 CFR 75 App. D Eq. D-6 / D-8 (÷ 10^6)",
+        )],
+        Method::FuelSulfur if gas_volume => vec![
+            constant(
+                "grains per lb",
+                c::GRAINS_PER_LB,
+                "40 CFR 75 App. D Eq. D-4",
+            ),
+            constant(
+                "lb SO2 per lb S",
+                c::SO2_PER_S,
+                "40 CFR 75 App. D Eq. D-4 (64/32)",
+            ),
+        ],
+        Method::FuelSulfur => vec![constant(
+            "lb SO2 per lb S",
+            c::SO2_PER_S,
+            "40 CFR 75 App. D Eq. D-2 (64/32)",
+        )],
+        Method::EmissionFactor { factor_lb, .. } => vec![constant(
+            "emission factor (lb per unit of fuel)",
+            *factor_lb,
+            "site file method (AP-42 Ch. 1 convention)",
+        )],
+        Method::DefaultRate { rate_lb_per_mmbtu } => vec![constant(
+            "default rate (lb/MMBtu)",
+            *rate_lb_per_mmbtu,
+            "site file method (40 CFR 75 App. D Eq. D-5)",
+        )],
+        Method::FuelCarbon => vec![
+            constant("MW CO2", c::MW_CO2, "40 CFR 75 App. G Eq. G-1"),
+            constant("MW C", c::MW_C, "40 CFR 75 App. G Eq. G-1"),
+        ],
+        Method::FcFactor => vec![
+            constant(
+                "Fc (scf CO2/MMBtu)",
+                c::f_factors(fuel).fc_scf_per_mmbtu,
+                &format!("40 CFR 75 App. F Table 1, {fuel}"),
+            ),
+            constant(
+                "scf CO2 per lb-mole",
+                c::SCF_PER_LB_MOLE,
+                "40 CFR 75 App. G Eq. G-4",
+            ),
+            constant("MW CO2", c::MW_CO2, "40 CFR 75 App. G Eq. G-4"),
+        ],
+        Method::Cems { .. } => Vec::new(),
+    }
 }

@@ -12,7 +12,7 @@
 //! `programs.SO2-ANNUAL.shortfall`). This module formats; it computes no
 //! figure.
 
-use super::model::{AnnualReport, Period, QuarterReport, UnitReport};
+use super::model::{AnnualReport, AsOfView, Period, QuarterReport, UnitReport};
 use super::svg::{self, esc, grouped, Bar, Series, Vintage};
 use chrono::{Datelike, NaiveDate};
 use rust_decimal::Decimal;
@@ -51,6 +51,7 @@ dl.meta dd { margin:0; }
 .status.journal { border-left-color:var(--rule); color:var(--muted); margin-top:4px; }
 .status.certified { border-left-color:#2f6b45; background:#eef5ef; }
 .status.amended { border-left-color:#b7791f; background:#fbf3e4; }
+.status.asof { border-left-color:#7a3e9d; background:#f4eef8; }
 code.hash { font-size:7.5pt; word-break:break-all; }
 section { margin-top:16px; }
 section > h2 { font-size:13pt; border-bottom:1px solid var(--ink); padding-bottom:2px; margin-bottom:6px; }
@@ -215,6 +216,24 @@ fn journal(r: &AnnualReport) -> String {
     }
 }
 
+/// The as-of line of the header: the journal entry the report stops at.
+fn as_of(a: Option<&AsOfView>) -> String {
+    match a {
+        Some(a) => format!(
+            "<p class=\"status asof\" data-as-of-seq=\"{}\" data-as-of-at=\"{}\" data-as-of-hash=\"{}\">\
+<strong>As of journal entry {}</strong> (recorded {}, hash <code class=\"hash\">{}</code>): the ledger as it stood \
+right after that entry; later entries are left out.</p>",
+            a.seq,
+            esc(&a.at),
+            esc(&a.hash),
+            a.seq,
+            esc(&a.at),
+            esc(&a.hash)
+        ),
+        None => String::new(),
+    }
+}
+
 fn header(r: &AnnualReport, out: &mut String) {
     let _ = write!(
         out,
@@ -259,6 +278,7 @@ fn header(r: &AnnualReport, out: &mut String) {
     );
     out.push_str(&certification(r));
     out.push_str(&journal(r));
+    out.push_str(&as_of(r.as_of.as_ref()));
 }
 
 fn totals(r: &AnnualReport, out: &mut String) {
@@ -820,6 +840,7 @@ pub fn quarter(r: &QuarterReport) -> String {
         r.quarter,
         id = esc(&r.facility),
     );
+    out.push_str(&as_of(r.as_of.as_ref()));
     out.push_str(
         "<section id=\"quarter\"><h2><span class=\"no\">1</span>Units</h2><table><thead><tr><th>Unit</th><th>Period</th>\
 <th class=\"num\">Heat input<br>MMBtu</th><th class=\"num\">SO2<br>tons</th><th class=\"num\">NOx<br>tons</th>\
@@ -953,6 +974,7 @@ mod tests {
             programs,
             certification: None,
             journal: None,
+            as_of: None,
             caution: crate::report::CAUTION,
         }
     }
@@ -1069,9 +1091,22 @@ mod tests {
                 quarter: p(dec!(1.25)),
                 year_to_date: p(dec!(3.75)),
             },
+            as_of: None,
             caution: crate::report::CAUTION,
         };
         let html = quarter(&q);
+        assert!(!html.contains("data-as-of"));
+        let mut cut = q.clone();
+        cut.as_of = Some(AsOfView {
+            seq: 3,
+            at: "<soon>".to_string(),
+            hash: "ab".repeat(32),
+        });
+        let as_of = quarter(&cut);
+        assert!(as_of.contains(&format!(
+            "data-as-of-seq=\"3\" data-as-of-at=\"&lt;soon&gt;\" data-as-of-hash=\"{}\"><strong>As of journal entry 3</strong> (recorded &lt;soon&gt;,",
+            "ab".repeat(32)
+        )));
         assert!(html.contains("Mill &lt;A&gt;"));
         assert!(html.contains("April 1 to June 30"));
         assert!(html

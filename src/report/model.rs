@@ -36,7 +36,29 @@ pub struct AnnualReport {
     /// copy names the ledger state it came from; absent where not read.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub journal: Option<JournalView>,
+    /// The journal entry an as-of report stops at; absent for the ledger as it is.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub as_of: Option<AsOfView>,
     pub caution: &'static str,
+}
+
+/// `--as-of`: the report shows the ledger as it stood right after this
+/// journal entry, and leaves every later entry out.
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct AsOfView {
+    pub seq: i64,
+    pub at: String,
+    pub hash: String,
+}
+
+impl AsOfView {
+    /// The sentence every format carries, in words.
+    pub fn sentence(&self) -> String {
+        format!(
+            "As of journal entry {} (recorded {}, hash {}): the ledger as it stood right after that entry; later entries are left out.",
+            self.seq, self.at, self.hash
+        )
+    }
 }
 
 /// The audit journal's head: entries so far and the last entry's hash.
@@ -252,6 +274,8 @@ pub struct FleetReport {
     pub facilities: Vec<AnnualReport>,
     /// Sums over every unit of every facility.
     pub fleet: Totals,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub as_of: Option<AsOfView>,
     pub caution: &'static str,
 }
 
@@ -323,6 +347,7 @@ pub fn annual(site: &Site, site_version: i64, year: i32, units: &[UnitYear]) -> 
         programs: Vec::new(),
         certification: None,
         journal: None,
+        as_of: None,
         caution: CAUTION,
     }
 }
@@ -337,6 +362,8 @@ pub struct QuarterReport {
     pub quarter: u32,
     pub units: Vec<QuarterUnit>,
     pub totals: QuarterUnit,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub as_of: Option<AsOfView>,
     pub caution: &'static str,
 }
 
@@ -399,6 +426,7 @@ pub fn quarter(r: &AnnualReport, q: u32) -> QuarterReport {
             .map(|u| quarter_unit(&u.unit, &u.quarters, q))
             .collect(),
         totals: quarter_unit("Facility", &r.totals.quarters, q),
+        as_of: r.as_of.clone(),
         caution: CAUTION,
     }
 }

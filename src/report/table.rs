@@ -54,6 +54,9 @@ pub fn annual(r: &AnnualReport) -> String {
         "{} ({}): annual emissions {} (site file version {}, rounding {})\n",
         r.facility_name, r.facility, r.year, r.site_version, r.rounding
     );
+    if let Some(a) = &r.as_of {
+        let _ = writeln!(out, "{}\n", a.sentence());
+    }
     if let Some(c) = &r.certification {
         let _ = writeln!(out, "{}\n", certification_line(c));
     }
@@ -227,6 +230,9 @@ pub fn quarter(r: &super::model::QuarterReport) -> String {
         "{} ({}): quarter {} of {}, and the year to its end\n",
         r.facility_name, r.facility, r.quarter, r.year
     );
+    if let Some(a) = &r.as_of {
+        let _ = writeln!(out, "{}\n", a.sentence());
+    }
     let mut t = table(&[
         "Unit",
         "Period",
