@@ -69,7 +69,7 @@ pub enum LedgerError {
     #[error("could not write the ledger: disk full or file too large")]
     Full,
     #[error(
-        "not enough free disk space for this import: {free} bytes free where {dir} is, about {needed} needed (disk full?)"
+        "not enough free disk space for this import: {free} bytes free on the filesystem of {dir}, about {needed} needed; nothing was written"
     )]
     NoSpace { dir: String, free: u64, needed: u64 },
     #[error("the ledger file is damaged: {0}")]
