@@ -27,8 +27,13 @@ trap cleanup EXIT
 
 failures=0
 skipped=0
-fail() { echo "storage: FAIL: $*"; failures=$((failures + 1)); }
-skip() { echo "storage: SKIPPED: $*"; skipped=$((skipped + 1)); }
+# A counts line, also appended to $FLUE_FAULTS_LOG (.ci/run's summary) when set.
+say() {
+    echo "$*"
+    if [ -n "${FLUE_FAULTS_LOG:-}" ]; then echo "$*" >>"$FLUE_FAULTS_LOG"; fi
+}
+fail() { say "storage: FAIL: $*"; failures=$((failures + 1)); }
+skip() { say "storage: SKIPPED: $*"; skipped=$((skipped + 1)); }
 
 # Run flue; sets RC and ERR. A death by signal (exit > 128) is a failure.
 run() {
@@ -148,7 +153,7 @@ diskfull() {
     if [ "$RC" != 0 ] || ! grep -q "20000 new" "$W/out"; then fail "import after freeing space: $RC $ERR"; fi
     run --ledger "$db" verify
     [ "$RC" = 0 ] || fail "verify after the import: $ERR"
-    echo "storage: diskfull_ext4 image=8MiB refused_preflight=$refused_preflight refused_full=$refused_full raced=$raced reads_while_full=$reads_while_full signals=0 unchanged=1"
+    say "storage: diskfull_ext4 image=8MiB refused_preflight=$refused_preflight refused_full=$refused_full raced=$raced reads_while_full=$reads_while_full signals=0 unchanged=1"
 }
 
 # ---- read-only bind mount ----
@@ -182,7 +187,7 @@ readonly_mount() {
     run --ledger "$db" verify
     if [ "$RC" = 0 ]; then reads=$((reads + 1)); else fail "read-only: verify: $ERR"; fi
     [ "$(sha256sum <"$db")" = "$sha" ] || fail "read-only: the ledger changed"
-    echo "storage: readonly_bind_mount writes_refused=$refused reads_ok=$reads unchanged=1"
+    say "storage: readonly_bind_mount writes_refused=$refused reads_ok=$reads unchanged=1"
 }
 
 if [ -n "$can_mount" ]; then
@@ -192,5 +197,5 @@ else
     diskfull
     readonly_mount
 fi
-echo "storage: failures=$failures skipped=$skipped"
+say "storage: failures=$failures skipped=$skipped"
 [ "$failures" = 0 ]

@@ -11,6 +11,21 @@ use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 use tempfile::TempDir;
 
+/// Print a `faults: ...` line and, where `FLUE_FAULTS_LOG` names a file,
+/// append it there too: .ci/run collects them into one summary.
+macro_rules! counts {
+    ($($arg:tt)*) => {{
+        let line = format!($($arg)*);
+        println!("{line}");
+        if let Some(log) = std::env::var_os("FLUE_FAULTS_LOG") {
+            use std::io::Write;
+            if let Ok(mut f) = std::fs::OpenOptions::new().create(true).append(true).open(log) {
+                let _ = writeln!(f, "{line}");
+            }
+        }
+    }};
+}
+
 const SITE: &str = r#"[facility]
 id = "WH1"
 name = "Wren Hollow Mill"
@@ -847,7 +862,7 @@ fn malformed_corpus_is_refused_with_its_golden_messages() {
         }
         per_kind.push(format!("{kind}={}", found.len()));
     }
-    println!(
+    counts!(
         "faults: malformed_files={cases} ({}) golden_mismatches={} ledger_changed=0 rewritten={rewritten}",
         per_kind.join(" "),
         mismatched.len()

@@ -17,6 +17,21 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tempfile::TempDir;
 
+/// Print a `faults: ...` line and, where `FLUE_FAULTS_LOG` names a file,
+/// append it there too: .ci/run collects them into one summary.
+macro_rules! counts {
+    ($($arg:tt)*) => {{
+        let line = format!($($arg)*);
+        println!("{line}");
+        if let Some(log) = std::env::var_os("FLUE_FAULTS_LOG") {
+            use std::io::Write;
+            if let Ok(mut f) = std::fs::OpenOptions::new().create(true).append(true).open(log) {
+                let _ = writeln!(f, "{line}");
+            }
+        }
+    }};
+}
+
 const NOW: &str = "2040-01-15T10:00:00Z";
 
 struct Rng(u64);
@@ -29,7 +44,7 @@ impl Rng {
             // A fixed default keeps CI repeatable and off the real clock;
             // FAULTS_SEED explores other sequences.
             .unwrap_or(2026);
-        println!("faults: {test} seed={seed}");
+        counts!("faults: {test} seed={seed}");
         Rng(seed | 1)
     }
 
@@ -259,7 +274,7 @@ fn kill9_during_a_large_hourly_import() {
     let get = |i: usize| counters[i].load(Ordering::SeqCst);
     assert!(get(KILLED) >= KILLS);
     assert_eq!(get(PRESENT) + get(ABSENT), get(RUNS));
-    println!(
+    counts!(
         "faults: kill9 runs={} lost=0 partial=0 killed={} present={} absent={} reruns={} (one import {span:?})",
         get(RUNS),
         get(KILLED),
@@ -317,7 +332,7 @@ fn a_held_write_lock_refuses_the_import_after_the_timeout() {
     );
     assert_eq!(std::fs::read(&ledger).unwrap(), bytes, "ledger changed");
     verify_ok(&ledger);
-    println!(
+    counts!(
         "faults: busy waited={:.2}s exit=1 unchanged=1",
         waited.as_secs_f64()
     );
@@ -420,7 +435,7 @@ fn concurrent_importers_lose_and_duplicate_nothing() {
         .query_row("SELECT count(*) FROM analyses", [], |r| r.get(0))
         .unwrap();
     let expected = before + ok_files.iter().filter(|d| **d).count() as i64 * rows_per_file as i64;
-    println!(
+    counts!(
         "faults: concurrent importers=9 ok={ok} refused={refused} nothing_new={nothing_new} lost={lost} duplicated={duplicated} stray={stray}"
     );
     assert_eq!((lost, duplicated, stray), (0, 0, 0));
@@ -452,7 +467,7 @@ fn a_full_disk_refuses_the_import_and_changes_nothing() {
     // The same import goes through once there is room.
     let out = flue(&ledger, &["import", "hourly", csv.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
-    println!(
+    counts!(
         "faults: diskfull max_pages={} exit=1 unchanged=1",
         pages + 8
     );
@@ -479,14 +494,14 @@ fn an_immutable_ledger_refuses_writes_and_still_reads() {
     match made {
         Ok(o) if o.status.success() => {}
         Ok(o) => {
-            println!(
+            counts!(
                 "faults: readonly skipped: chattr +i failed: {}",
                 String::from_utf8_lossy(&o.stderr).trim()
             );
             return;
         }
         Err(e) => {
-            println!("faults: readonly skipped: no chattr: {e}");
+            counts!("faults: readonly skipped: no chattr: {e}");
             return;
         }
     }
@@ -501,7 +516,7 @@ fn an_immutable_ledger_refuses_writes_and_still_reads() {
     drop(_guard);
     let out = flue(&ledger, &["import", "fuel", fuel.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
-    println!("faults: readonly write=refused report=ok verify=ok");
+    counts!("faults: readonly write=refused report=ok verify=ok");
 }
 
 /// Every table's rows, with their types, plus the schema and the header
@@ -628,7 +643,7 @@ fn bit_flips_never_pass_verify_unnoticed() {
             "verify wrote to the ledger"
         );
     }
-    println!(
+    counts!(
         "faults: bitflips={FLIPS} detected={detected} no_effect={no_effect} undetected={undetected} (ledger {} bytes)",
         original.len()
     );
@@ -765,7 +780,7 @@ fn every_crash_point_of_every_write_leaves_all_or_nothing() {
             std::fs::remove_file(&ledger).unwrap();
         }
     }
-    println!(
+    counts!(
         "faults: crash_points tried={tried} aborted={tried} rolled_back={rolled_back} committed_whole={committed} partial=0 verify_failures=0"
     );
     assert_eq!(tried, 6 * POINTS.len());
@@ -860,7 +875,7 @@ fn out_files_appear_whole_or_not_at_all() {
     );
     assert_eq!(out.status.code(), Some(1), "{}", text(&out));
     assert_eq!(std::fs::read(&target).unwrap(), b"keep\n");
-    println!("faults: atomic_out crashes=2 half_written=0 overwritten_without_force=0");
+    counts!("faults: atomic_out crashes=2 half_written=0 overwritten_without_force=0");
 }
 
 /// (i) SIGINT and SIGTERM at random moments of a large hourly import: the
@@ -948,7 +963,7 @@ fn sigint_and_sigterm_during_a_large_import_leave_all_or_nothing() {
             "{name} runs={RUNS_PER_SIGNAL} interrupted={signalled} completed={completed} absent={absent} present={present}"
         ));
     }
-    println!(
+    counts!(
         "faults: signals {} partial=0 verify_failures=0",
         summary.join(" ")
     );
