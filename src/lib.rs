@@ -10,6 +10,7 @@ pub mod assemble;
 pub mod audit;
 pub mod cli;
 pub mod compute;
+pub mod crashpoint;
 pub mod csvread;
 pub mod decimal;
 pub mod emissions;

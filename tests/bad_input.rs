@@ -11,6 +11,21 @@ use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 use tempfile::TempDir;
 
+/// Print a `faults: ...` line and, where `FLUE_FAULTS_LOG` names a file,
+/// append it there too: .ci/run collects them into one summary.
+macro_rules! counts {
+    ($($arg:tt)*) => {{
+        let line = format!($($arg)*);
+        println!("{line}");
+        if let Some(log) = std::env::var_os("FLUE_FAULTS_LOG") {
+            use std::io::Write;
+            if let Ok(mut f) = std::fs::OpenOptions::new().create(true).append(true).open(log) {
+                let _ = writeln!(f, "{line}");
+            }
+        }
+    }};
+}
+
 const SITE: &str = r#"[facility]
 id = "WH1"
 name = "Wren Hollow Mill"
@@ -232,6 +247,21 @@ fn a_refusal_names_each_bad_row_once() {
     );
     let stderr = plant.refused(&["import", "fuel", "fuel.csv"]);
     assert_eq!(stderr.matches("fuel.csv:2:5").count(), 1, "{stderr}");
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+}
+
+/// The same, for allowance files: their parse error was a source of the
+/// import error as well as its message.
+#[test]
+fn an_allowance_refusal_names_each_bad_row_once() {
+    let plant = Plant::new();
+    plant.write(
+        "allowances.csv",
+        "id,date,kind,program,vintage,quantity,from,to,price,note\n\
+         WH-A25,2025-03-14,allocation,SO2-YEAR,2025,-5,,WH1-MAIN,,\n",
+    );
+    let stderr = plant.refused(&["import", "allowances", "allowances.csv"]);
+    assert_eq!(stderr.matches("allowances.csv:2:6").count(), 1, "{stderr}");
     assert_eq!(stderr.lines().count(), 1, "{stderr}");
 }
 
@@ -756,4 +786,92 @@ fn a_text_file_as_the_ledger_is_refused() {
     );
     let stderr = plant.refused_with_ledger("notes.db", &["import", "analyses", "analyses.csv"]);
     assert!(stderr.contains("notes.db is not a flue ledger"), "{stderr}");
+}
+
+// ---- the malformed-input corpus (RELIABILITY.md section 4 A) ----
+
+/// The corpus: tests/malformed/<kind>/NAME.csv (NAME.toml for site files),
+/// each refused against the plant in tests/malformed/base/, with the exact
+/// stderr beside it in NAME.expected. `FLUE_GOLDEN=overwrite` rewrites the
+/// expected files from what flue prints now (read the diff before
+/// committing).
+fn corpus_root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed")
+}
+
+/// The cases of one kind, sorted by name.
+fn corpus_cases(kind: &str) -> Vec<PathBuf> {
+    let mut cases: Vec<PathBuf> = std::fs::read_dir(corpus_root().join(kind))
+        .unwrap_or_else(|e| panic!("tests/malformed/{kind}: {e}"))
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "csv" || x == "toml"))
+        .collect();
+    cases.sort();
+    cases
+}
+
+#[test]
+fn malformed_corpus_is_refused_with_its_golden_messages() {
+    let overwrite = std::env::var("FLUE_GOLDEN").as_deref() == Ok("overwrite");
+    let plant = Plant::empty();
+    let base = corpus_root().join("base");
+    for name in ["site.toml", "analyses.csv", "allowances.csv"] {
+        plant.write(name, std::fs::read(base.join(name)).unwrap());
+    }
+    plant.ok(&["site", "load", "site.toml"]);
+    plant.ok(&["import", "analyses", "analyses.csv"]);
+    plant.ok(&["import", "allowances", "allowances.csv"]);
+    let (mut cases, mut mismatched, mut rewritten) = (0, Vec::new(), 0);
+    let mut per_kind = Vec::new();
+    for kind in ["fuel", "analyses", "hourly", "allowances", "site"] {
+        std::fs::create_dir(plant.path(kind)).unwrap();
+        let found = corpus_cases(kind);
+        for case in &found {
+            let file = case.file_name().unwrap().to_str().unwrap();
+            let rel = format!("{kind}/{file}");
+            plant.write(&rel, std::fs::read(case).unwrap());
+            let args: Vec<&str> = match kind {
+                "site" => vec!["site", "load", &rel],
+                _ => vec!["import", kind, &rel],
+            };
+            // Exit 1, nothing on stdout, the ledger byte-identical.
+            let stderr = plant.refused(&args);
+            // Every refusal names the file and a line.
+            let place = format!("error: {rel}:");
+            assert!(
+                stderr.starts_with(&place)
+                    && stderr[place.len()..].starts_with(|c: char| c.is_ascii_digit()),
+                "{rel}: the refusal names no line:\n{stderr}"
+            );
+            let expected = case.with_extension("expected");
+            if overwrite {
+                std::fs::write(&expected, &stderr).unwrap();
+                rewritten += 1;
+            } else {
+                let golden = std::fs::read_to_string(&expected).unwrap_or_else(|e| {
+                    panic!(
+                        "{}: {e} (FLUE_GOLDEN=overwrite writes it)",
+                        expected.display()
+                    )
+                });
+                if golden != stderr {
+                    mismatched.push(format!("{rel}:\n  expected: {golden}  found:    {stderr}"));
+                }
+            }
+            cases += 1;
+        }
+        per_kind.push(format!("{kind}={}", found.len()));
+    }
+    counts!(
+        "faults: malformed_files={cases} ({}) golden_mismatches={} ledger_changed=0 rewritten={rewritten}",
+        per_kind.join(" "),
+        mismatched.len()
+    );
+    assert!(
+        mismatched.is_empty(),
+        "{} refusals differ from their golden (FLUE_GOLDEN=overwrite rewrites them):\n{}",
+        mismatched.len(),
+        mismatched.join("\n")
+    );
+    assert!(cases >= 80, "only {cases} corpus files");
 }

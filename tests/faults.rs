@@ -17,6 +17,21 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tempfile::TempDir;
 
+/// Print a `faults: ...` line and, where `FLUE_FAULTS_LOG` names a file,
+/// append it there too: .ci/run collects them into one summary.
+macro_rules! counts {
+    ($($arg:tt)*) => {{
+        let line = format!($($arg)*);
+        println!("{line}");
+        if let Some(log) = std::env::var_os("FLUE_FAULTS_LOG") {
+            use std::io::Write;
+            if let Ok(mut f) = std::fs::OpenOptions::new().create(true).append(true).open(log) {
+                let _ = writeln!(f, "{line}");
+            }
+        }
+    }};
+}
+
 const NOW: &str = "2040-01-15T10:00:00Z";
 
 struct Rng(u64);
@@ -29,7 +44,7 @@ impl Rng {
             // A fixed default keeps CI repeatable and off the real clock;
             // FAULTS_SEED explores other sequences.
             .unwrap_or(2026);
-        println!("faults: {test} seed={seed}");
+        counts!("faults: {test} seed={seed}");
         Rng(seed | 1)
     }
 
@@ -271,7 +286,7 @@ fn kill9_during_a_large_hourly_import() {
     let get = |i: usize| counters[i].load(Ordering::SeqCst);
     assert!(get(KILLED) >= KILLS);
     assert_eq!(get(PRESENT) + get(ABSENT), get(RUNS));
-    println!(
+    counts!(
         "faults: kill9 runs={} lost=0 partial=0 killed={} present={} absent={} reruns={} (one import {span:?})",
         get(RUNS),
         get(KILLED),
@@ -329,7 +344,7 @@ fn a_held_write_lock_refuses_the_import_after_the_timeout() {
     );
     assert_eq!(std::fs::read(&ledger).unwrap(), bytes, "ledger changed");
     verify_ok(&ledger);
-    println!(
+    counts!(
         "faults: busy waited={:.2}s exit=1 unchanged=1",
         waited.as_secs_f64()
     );
@@ -432,7 +447,7 @@ fn concurrent_importers_lose_and_duplicate_nothing() {
         .query_row("SELECT count(*) FROM analyses", [], |r| r.get(0))
         .unwrap();
     let expected = before + ok_files.iter().filter(|d| **d).count() as i64 * rows_per_file as i64;
-    println!(
+    counts!(
         "faults: concurrent importers=9 ok={ok} refused={refused} nothing_new={nothing_new} lost={lost} duplicated={duplicated} stray={stray}"
     );
     assert_eq!((lost, duplicated, stray), (0, 0, 0));
@@ -464,7 +479,7 @@ fn a_full_disk_refuses_the_import_and_changes_nothing() {
     // The same import goes through once there is room.
     let out = flue(&ledger, &["import", "hourly", csv.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
-    println!(
+    counts!(
         "faults: diskfull max_pages={} exit=1 unchanged=1",
         pages + 8
     );
@@ -491,14 +506,14 @@ fn an_immutable_ledger_refuses_writes_and_still_reads() {
     match made {
         Ok(o) if o.status.success() => {}
         Ok(o) => {
-            println!(
+            counts!(
                 "faults: readonly skipped: chattr +i failed: {}",
                 String::from_utf8_lossy(&o.stderr).trim()
             );
             return;
         }
         Err(e) => {
-            println!("faults: readonly skipped: no chattr: {e}");
+            counts!("faults: readonly skipped: no chattr: {e}");
             return;
         }
     }
@@ -513,7 +528,7 @@ fn an_immutable_ledger_refuses_writes_and_still_reads() {
     drop(_guard);
     let out = flue(&ledger, &["import", "fuel", fuel.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
-    println!("faults: readonly write=refused report=ok verify=ok");
+    counts!("faults: readonly write=refused report=ok verify=ok");
 }
 
 /// Every table's rows, with their types, plus the schema and the header
@@ -640,9 +655,337 @@ fn bit_flips_never_pass_verify_unnoticed() {
             "verify wrote to the ledger"
         );
     }
-    println!(
+    counts!(
         "faults: bitflips={FLIPS} detected={detected} no_effect={no_effect} undetected={undetected} (ledger {} bytes)",
         original.len()
     );
     assert_eq!(undetected, 0);
+}
+
+/// One writing command of each kind, with input that adds to the demo
+/// ledger: (kind, arguments).
+fn writing_commands(d: &Path, receipt: &Path) -> Vec<(&'static str, Vec<String>)> {
+    let s = |p: &Path| p.display().to_string();
+    let analyses = {
+        let src = std::fs::read_to_string(d.join("analyses.csv")).unwrap();
+        let mut out = String::new();
+        for (n, line) in src.lines().enumerate() {
+            if n > 0 {
+                out.push_str("CP-");
+            }
+            out.push_str(line);
+            out.push('\n');
+        }
+        let p = d.join("analyses-extra.csv");
+        std::fs::write(&p, out).unwrap();
+        p
+    };
+    let hourly = d.join("hourly-extra.csv");
+    std::fs::write(&hourly, shifted_hourly(d, 2000)).unwrap();
+    let allowances = d.join("allowances-extra.csv");
+    std::fs::write(
+        &allowances,
+        "id,date,kind,program,vintage,quantity,from,to,price,note,serial_from,serial_to\n\
+         MC-A26-SO2,2026-03-13,allocation,SO2-ANNUAL,2026,17000,,MC1-COMPLIANCE,,2026 allocation (invented),260000001,260017000\n",
+    )
+    .unwrap();
+    let site = d.join("site-renamed.toml");
+    let text = std::fs::read_to_string(d.join("site.toml")).unwrap();
+    std::fs::write(
+        &site,
+        text.replace(
+            "name = \"Marrow Creek Station\"",
+            "name = \"Marrow Creek Generating Station\"",
+        ),
+    )
+    .unwrap();
+    let fuel = fuel_2026(d);
+    let v = |a: &[&str]| a.iter().map(|x| x.to_string()).collect::<Vec<_>>();
+    vec![
+        ("fuel", v(&["import", "fuel", &s(&fuel)])),
+        ("analyses", v(&["import", "analyses", &s(&analyses)])),
+        ("hourly", v(&["import", "hourly", &s(&hourly)])),
+        ("allowances", v(&["import", "allowances", &s(&allowances)])),
+        ("site", v(&["site", "load", &s(&site)])),
+        (
+            "certify",
+            v(&[
+                "certify",
+                "--year",
+                "2025",
+                "--by",
+                "A. Tester",
+                "--out",
+                &s(receipt),
+            ]),
+        ),
+    ]
+}
+
+fn died_by(status: &std::process::ExitStatus) -> Option<i32> {
+    use std::os::unix::process::ExitStatusExt;
+    status.signal()
+}
+
+/// (g) Every named crash point of a write (src/crashpoint.rs), for every
+/// kind of writing command: the process aborts there; afterwards the ledger
+/// holds what it held before (or, past COMMIT, all of the write), verifies,
+/// and the same command run again completes it exactly once.
+#[test]
+fn every_crash_point_of_every_write_leaves_all_or_nothing() {
+    const POINTS: [&str; 4] = ["write-begin", "write-rows", "write-journal", "write-commit"];
+    let tmp = TempDir::new().unwrap();
+    let d = demo(tmp.path());
+    let base = d.join("flue.db");
+    let receipt = tmp.path().join("receipt.json");
+    let before = canonical_dump(&base).expect("the demo ledger reads");
+    let (mut tried, mut rolled_back, mut committed) = (0, 0, 0);
+    for (kind, args) in writing_commands(&d, &receipt) {
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        // The write done in full, for comparison.
+        let reference = tmp.path().join(format!("{kind}-reference.db"));
+        std::fs::copy(&base, &reference).unwrap();
+        let out = flue(&reference, &args);
+        assert_eq!(out.status.code(), Some(0), "{kind}: {}", text(&out));
+        let after = canonical_dump(&reference).unwrap();
+        assert_ne!(after, before, "{kind}: the command wrote nothing");
+        let _ = std::fs::remove_file(&receipt);
+        for point in POINTS {
+            let ledger = tmp.path().join(format!("{kind}-{point}.db"));
+            std::fs::copy(&base, &ledger).unwrap();
+            let out = flue_cmd(&ledger)
+                .env("FLUE_CRASH_AT", point)
+                .args(&args)
+                .stdin(Stdio::null())
+                .output()
+                .unwrap();
+            tried += 1;
+            assert_eq!(
+                died_by(&out.status),
+                Some(libc::SIGABRT),
+                "{kind} at {point} did not abort: {:?} {}",
+                out.status,
+                text(&out)
+            );
+            assert!(out.stdout.is_empty(), "{kind} at {point} printed a result");
+            assert!(!receipt.exists(), "{kind} at {point} wrote a receipt");
+            verify_ok(&ledger);
+            let now = canonical_dump(&ledger).unwrap();
+            if point == "write-commit" {
+                assert!(now == after, "{kind} at {point}: the commit is not whole");
+                committed += 1;
+            } else {
+                assert!(now == before, "{kind} at {point}: the ledger changed");
+                rolled_back += 1;
+            }
+            // Run again: the write lands once, whatever the crash left.
+            let out = flue(&ledger, &args);
+            if point != "write-commit" {
+                assert_eq!(out.status.code(), Some(0), "{kind} re-run: {}", text(&out));
+            }
+            assert!(
+                canonical_dump(&ledger).unwrap() == after,
+                "{kind} re-run after {point} differs from one clean run"
+            );
+            verify_ok(&ledger);
+            let _ = std::fs::remove_file(&receipt);
+            std::fs::remove_file(&ledger).unwrap();
+        }
+    }
+    counts!(
+        "faults: crash_points tried={tried} aborted={tried} rolled_back={rolled_back} committed_whole={committed} partial=0 verify_failures=0"
+    );
+    assert_eq!(tried, 6 * POINTS.len());
+}
+
+/// (h) `--out` is written under a temporary name and renamed into place: a
+/// crash before the rename leaves no report (or the old one, with
+/// `--force`), never half of one; an existing file is kept without `--force`.
+#[test]
+fn out_files_appear_whole_or_not_at_all() {
+    let tmp = TempDir::new().unwrap();
+    let d = demo(tmp.path());
+    let ledger = d.join("flue.db");
+    let report = tmp.path().join("annual.csv");
+    let report_s = report.to_str().unwrap();
+    let args = ["report", "annual", "--year", "2025", "--format", "csv"];
+    let stray = |dir: &Path| -> Vec<String> {
+        std::fs::read_dir(dir)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .filter(|n| n.ends_with(".tmp"))
+            .collect()
+    };
+
+    let full = flue(&ledger, &args);
+    assert_eq!(full.status.code(), Some(0), "{}", text(&full));
+    assert!(!full.stdout.is_empty());
+
+    // A crash after the temporary file is written, before the rename.
+    let crash = |force: bool| {
+        let mut c = flue_cmd(&ledger);
+        c.env("FLUE_CRASH_AT", "out-temp")
+            .args(args)
+            .args(["--out", report_s]);
+        if force {
+            c.arg("--force");
+        }
+        let out = c.stdin(Stdio::null()).output().unwrap();
+        assert_eq!(died_by(&out.status), Some(libc::SIGABRT), "{}", text(&out));
+    };
+    crash(false);
+    assert!(!report.exists(), "a crash before the rename left a report");
+    // What the crash leaves is the hidden temporary file, whole.
+    let left = stray(tmp.path());
+    assert_eq!(left.len(), 1, "{left:?}");
+    assert_eq!(
+        std::fs::read(tmp.path().join(&left[0])).unwrap(),
+        full.stdout
+    );
+    std::fs::remove_file(tmp.path().join(&left[0])).unwrap();
+
+    // Written in full, then kept without --force.
+    let out = flue(&ledger, &[&args[..], &["--out", report_s]].concat());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    assert_eq!(std::fs::read(&report).unwrap(), full.stdout);
+    std::fs::write(&report, "an older report\n").unwrap();
+    let out = flue(&ledger, &[&args[..], &["--out", report_s]].concat());
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    assert!(
+        text(&out).contains("already exists; pass --force"),
+        "{}",
+        text(&out)
+    );
+    assert_eq!(std::fs::read(&report).unwrap(), b"an older report\n");
+
+    // With --force, a crash keeps the old report whole; a run replaces it.
+    crash(true);
+    assert_eq!(std::fs::read(&report).unwrap(), b"an older report\n");
+    for f in stray(tmp.path()) {
+        std::fs::remove_file(tmp.path().join(f)).unwrap();
+    }
+    let out = flue(
+        &ledger,
+        &[&args[..], &["--out", report_s, "--force"]].concat(),
+    );
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    assert_eq!(std::fs::read(&report).unwrap(), full.stdout);
+    assert_eq!(
+        stray(tmp.path()),
+        Vec::<String>::new(),
+        "a temporary file was left"
+    );
+
+    // A symlink at the name is refused without --force, its target untouched.
+    let target = tmp.path().join("elsewhere.txt");
+    std::fs::write(&target, "keep\n").unwrap();
+    let link = tmp.path().join("link.csv");
+    std::os::unix::fs::symlink(&target, &link).unwrap();
+    let out = flue(
+        &ledger,
+        &[&args[..], &["--out", link.to_str().unwrap()]].concat(),
+    );
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    assert_eq!(std::fs::read(&target).unwrap(), b"keep\n");
+    counts!("faults: atomic_out crashes=2 half_written=0 overwritten_without_force=0");
+}
+
+/// (i) SIGINT and SIGTERM at random moments of a large hourly import: the
+/// default action ends the process; SQLite's rollback journal undoes the
+/// open transaction at the next open, so the import is wholly absent or
+/// wholly present, and the ledger verifies.
+#[test]
+fn sigint_and_sigterm_during_a_large_import_leave_all_or_nothing() {
+    use std::os::unix::process::CommandExt;
+    const ROWS: usize = 30_000;
+    const RUNS_PER_SIGNAL: usize = 8;
+    let tmp = TempDir::new().unwrap();
+    let d = demo(tmp.path());
+    let base = d.join("flue.db");
+    let big = tmp.path().join("k2-2026-30k.csv");
+    std::fs::write(&big, shifted_hourly(&d, ROWS)).unwrap();
+    let big_s = big.to_str().unwrap();
+    let before = count(
+        &base,
+        "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks",
+    );
+    let entries = count(&base, "SELECT count(*) FROM journal");
+
+    let probe = tmp.path().join("probe.db");
+    std::fs::copy(&base, &probe).unwrap();
+    let t = Instant::now();
+    let out = flue(&probe, &["import", "hourly", big_s]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let window = t.elapsed().as_micros() as u64 * 9 / 10 + 1;
+
+    let mut rng = Rng::new("signals");
+    let mut summary = Vec::new();
+    for (signal, name) in [(libc::SIGINT, "sigint"), (libc::SIGTERM, "sigterm")] {
+        let (mut signalled, mut completed, mut absent, mut present) = (0, 0, 0, 0);
+        for run in 0..RUNS_PER_SIGNAL {
+            let ledger = tmp.path().join(format!("{name}-{run}.db"));
+            std::fs::copy(&base, &ledger).unwrap();
+            let mut cmd = flue_cmd(&ledger);
+            cmd.args(["--quiet", "import", "hourly", big_s])
+                .stdin(Stdio::null())
+                .stdout(Stdio::null())
+                .stderr(Stdio::null());
+            // A shell that started this test in the background may have
+            // left SIGINT ignored, and ignored signals pass through exec.
+            // SAFETY: signal(2) is async-signal-safe and touches no memory of
+            // the parent.
+            unsafe {
+                cmd.pre_exec(move || {
+                    libc::signal(signal, libc::SIG_DFL);
+                    Ok(())
+                });
+            }
+            let mut child = cmd.spawn().expect("spawn import");
+            std::thread::sleep(Duration::from_micros(rng.below(window)));
+            // SAFETY: kill(2) on the pid of a child not yet waited for.
+            unsafe { libc::kill(child.id() as libc::pid_t, signal) };
+            let status = child.wait().unwrap();
+            match (status.code(), died_by(&status)) {
+                (None, Some(s)) if s == signal => signalled += 1,
+                (Some(0), _) => completed += 1,
+                other => panic!("{name}: import ended with {other:?}"),
+            }
+            verify_ok(&ledger);
+            let rows = count(
+                &ledger,
+                "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks",
+            );
+            let journal = count(&ledger, "SELECT count(*) FROM journal");
+            if rows == before && journal == entries {
+                absent += 1;
+            } else if rows == before + ROWS as i64 && journal == entries + 1 {
+                present += 1;
+            } else {
+                panic!(
+                    "{name}: half a batch: {} rows, {journal} entries",
+                    rows - before
+                );
+            }
+            if run % 4 == 0 {
+                let out = flue(&ledger, &["import", "hourly", big_s]);
+                assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+                assert_eq!(
+                    count(
+                        &ledger,
+                        "SELECT coalesce(sum(row_count), 0) FROM hourly_blocks"
+                    ),
+                    before + ROWS as i64
+                );
+            }
+            std::fs::remove_file(&ledger).unwrap();
+        }
+        assert!(signalled > 0, "{name}: no run was interrupted");
+        summary.push(format!(
+            "{name} runs={RUNS_PER_SIGNAL} interrupted={signalled} completed={completed} absent={absent} present={present}"
+        ));
+    }
+    counts!(
+        "faults: signals {} partial=0 verify_failures=0",
+        summary.join(" ")
+    );
 }

@@ -224,6 +224,7 @@ pub fn run_import(args: &ImportAllowancesArgs, ledger_path: &Path) -> super::Out
     }
     let mut ledger = Ledger::open(ledger_path)?;
     let file = InputFile::read(&args.file)?;
+    ledger.check_free_space(file.bytes.len() as u64)?;
     let outcome = import(
         &mut ledger,
         &file,

@@ -72,6 +72,9 @@ pub fn run(cmd: &ImportCommand, ledger_path: &Path) -> super::Outcome {
         ImportCommand::Analyses(a) | ImportCommand::Fuel(a) | ImportCommand::Hourly(a) => &a.file,
         ImportCommand::Allowances(a) => &a.file,
     };
+    // An unreadable file is reported by the import itself, naming it.
+    let input_bytes = std::fs::metadata(file).map(|m| m.len()).unwrap_or(0);
+    ledger.check_free_space(input_bytes)?;
     let spinner = super::progress::Spinner::start(format!("importing {}", file.display()));
     let (args, outcome): (&ImportArgs, Outcome) = match cmd {
         ImportCommand::Analyses(a) => (

@@ -164,13 +164,18 @@ pub fn stamp() -> crate::import::Stamp {
     crate::import::Stamp { at, by }
 }
 
-/// Write to stdout, or to a new file with `--out` (never overwriting without `--force`).
+/// Write to stdout, or to a file with `--out` (never overwriting without `--force`).
+///
+/// A file is written whole under a temporary name in its directory, synced,
+/// then moved into place (RELIABILITY.md R12), so a crash or a full disk
+/// leaves the old file or the new one, never half a report. Without
+/// `--force` the move is a hard link, which fails if the name has appeared
+/// meanwhile; a symlink at the name is replaced, never followed.
 pub fn emit(
     out: Option<&std::path::Path>,
     force: bool,
     write: impl FnOnce(&mut dyn std::io::Write) -> std::io::Result<()>,
 ) -> Outcome {
-    use anyhow::Context;
     use std::io::Write;
     match out {
         None => {
@@ -180,27 +185,72 @@ pub fn emit(
             lock.flush()?;
         }
         Some(path) => {
-            let mut options = std::fs::OpenOptions::new();
-            options.write(true);
-            if force {
-                options.create(true).truncate(true);
-            } else {
-                options.create_new(true);
-            }
-            let mut file = options.open(path).with_context(|| {
-                if path.exists() && !force {
-                    format!(
-                        "{}: already exists; pass --force to replace it",
-                        path.display()
-                    )
-                } else {
-                    format!("{}: cannot create", path.display())
-                }
-            })?;
-            write(&mut file).with_context(|| format!("{}: cannot write", path.display()))?;
-            file.sync_all()?;
+            write_atomically(path, force, write)?;
             note(format_args!("wrote {}", path.display()));
         }
+    }
+    Ok(())
+}
+
+/// Removes a temporary file unless it was moved into place.
+struct TempFile(Option<std::path::PathBuf>);
+
+impl Drop for TempFile {
+    fn drop(&mut self) {
+        if let Some(p) = self.0.take() {
+            let _ = std::fs::remove_file(p);
+        }
+    }
+}
+
+fn write_atomically(
+    path: &std::path::Path,
+    force: bool,
+    write: impl FnOnce(&mut dyn std::io::Write) -> std::io::Result<()>,
+) -> Outcome {
+    use anyhow::Context;
+    let shown = path.display();
+    let exists = || anyhow::anyhow!("{shown}: already exists; pass --force to replace it");
+    if !force && std::fs::symlink_metadata(path).is_ok() {
+        return Err(exists());
+    }
+    let Some(name) = path.file_name() else {
+        anyhow::bail!("{shown}: cannot create: not a file name");
+    };
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => std::path::Path::new("."),
+    };
+    let temp = dir.join(format!(
+        ".{}.{}.tmp",
+        name.to_string_lossy(),
+        std::process::id()
+    ));
+    let mut file = std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(&temp)
+        .with_context(|| format!("{shown}: cannot create"))?;
+    let mut guard = TempFile(Some(temp.clone()));
+    write(&mut file).with_context(|| format!("{shown}: cannot write"))?;
+    file.sync_all()
+        .with_context(|| format!("{shown}: cannot write"))?;
+    drop(file);
+    crate::crashpoint::crashpoint("out-temp");
+    if force {
+        std::fs::rename(&temp, path).with_context(|| format!("{shown}: cannot replace"))?;
+    } else {
+        match std::fs::hard_link(&temp, path) {
+            Ok(()) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => return Err(exists()),
+            Err(e) => return Err(e).with_context(|| format!("{shown}: cannot create")),
+        }
+        std::fs::remove_file(&temp).with_context(|| format!("{shown}: cannot create"))?;
+    }
+    guard.0 = None;
+    // The new name is durable once its directory is synced.
+    if let Ok(d) = std::fs::File::open(dir) {
+        let _ = d.sync_all();
     }
     Ok(())
 }

@@ -46,7 +46,9 @@ const SERIAL_MAX: u64 = i64::MAX as u64;
 
 #[derive(Debug, Error)]
 pub enum AllowanceError {
-    #[error("{0}")]
+    // Transparent, not "{0}" with a source: `main` prints the whole error
+    // chain, and a source would print every row error a second time.
+    #[error(transparent)]
     Rows(#[from] FileErrors),
     #[error(transparent)]
     Ledger(#[from] LedgerError),

@@ -259,7 +259,15 @@ impl<'a> Fields<'a> {
 
     pub fn date(&mut self, name: &str) -> Option<chrono::NaiveDate> {
         self.parse(name, true, "a date YYYY-MM-DD", |t| {
-            if t.len() != 10 {
+            let b = t.as_bytes();
+            let digits = |r: std::ops::Range<usize>| b[r].iter().all(u8::is_ascii_digit);
+            if b.len() != 10
+                || b[4] != b'-'
+                || b[7] != b'-'
+                || !digits(0..4)
+                || !digits(5..7)
+                || !digits(8..10)
+            {
                 return Err("not in the form YYYY-MM-DD".into());
             }
             chrono::NaiveDate::parse_from_str(t, "%Y-%m-%d")

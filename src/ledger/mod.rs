@@ -24,6 +24,7 @@ pub use journal::{
     schema_digest, Amendment, Certification, Certified, JournalReads, Problem, Verification,
 };
 
+use crate::crashpoint::crashpoint;
 use migrations::{latest_version, APPLICATION_ID, MIGRATIONS};
 use rusqlite::{config::DbConfig, Connection, ErrorCode, OpenFlags, TransactionBehavior};
 use std::path::{Path, PathBuf};
@@ -77,6 +78,10 @@ pub enum LedgerError {
     ReadOnly(String),
     #[error("could not write the ledger: disk full or file too large")]
     Full,
+    #[error(
+        "not enough free disk space for this import: {free} bytes free on the filesystem of {dir}, about {needed} needed; nothing was written"
+    )]
+    NoSpace { dir: String, free: u64, needed: u64 },
     #[error("the ledger file is damaged: {0}")]
     Damaged(String),
     #[error("could not create {path}: {source}")]
@@ -291,11 +296,41 @@ impl Ledger {
         &self.path
     }
 
+    /// Refuse, before anything is written, an import of `input_bytes` that
+    /// the ledger's filesystem may not have room for (RELIABILITY.md R14).
+    ///
+    /// The estimate is deliberately high: the rows may take twice the input
+    /// (an hourly file grew the ledger by 1.14 times its size when measured
+    /// here), the rollback journal may copy a quarter of the ledger (index
+    /// pages rewritten), plus 1 MiB. Passing it is no promise: a write that
+    /// still meets a full disk fails cleanly with `LedgerError::Full`.
+    pub fn check_free_space(&self, input_bytes: u64) -> Result<()> {
+        let ledger_bytes = std::fs::metadata(&self.path).map(|m| m.len()).unwrap_or(0);
+        let needed = input_bytes
+            .saturating_mul(2)
+            .saturating_add(ledger_bytes / 4)
+            .saturating_add(1 << 20);
+        let dir = match self.path.parent() {
+            Some(d) if !d.as_os_str().is_empty() => d,
+            _ => Path::new("."),
+        };
+        match free_bytes(dir) {
+            Some(free) if free < needed => Err(LedgerError::NoSpace {
+                dir: dir.display().to_string(),
+                free,
+                needed,
+            }),
+            // Where the filesystem cannot say, the write itself is the check.
+            _ => Ok(()),
+        }
+    }
+
     /// Run `f` in one `BEGIN IMMEDIATE` transaction; commit only if it succeeds.
     pub fn write<T, E: From<LedgerError>>(
         &mut self,
         f: impl FnOnce(&Tx) -> std::result::Result<T, E>,
     ) -> std::result::Result<T, E> {
+        crashpoint("write-begin");
         // A write gets a 64 MiB page cache, so a large import does not spill
         // dirty pages (and sync the journal) mid-transaction; reads keep
         // SQLite's small default, so parallel report readers stay small.
@@ -308,11 +343,26 @@ impl Ledger {
             .map_err(LedgerError::from)?;
         let tx = Tx { tx };
         let out = f(&tx)?;
+        crashpoint("write-rows");
         // Every row the write added gets its journal entry in the same transaction.
         tx.journal_pending(self.amend.as_deref())?;
+        crashpoint("write-journal");
         tx.tx.commit().map_err(LedgerError::from)?;
+        crashpoint("write-commit");
         Ok(out)
     }
+}
+
+/// Bytes an unprivileged writer may still use on the filesystem holding `dir`.
+#[cfg(unix)]
+fn free_bytes(dir: &Path) -> Option<u64> {
+    let s = rustix::fs::statvfs(dir).ok()?;
+    Some(s.f_bavail.saturating_mul(s.f_frsize))
+}
+
+#[cfg(not(unix))]
+fn free_bytes(_dir: &Path) -> Option<u64> {
+    None
 }
 
 /// Create the ledger file with mode 0600, failing if anything is there.
