@@ -210,6 +210,7 @@ impl Ledger {
         if !path.is_file() {
             return Err(LedgerError::NotFound(path.to_path_buf()));
         }
+        recover_hot_journal(path);
         let not_ours = |e: rusqlite::Error| match LedgerError::from(e) {
             LedgerError::Damaged(why) => LedgerError::Damaged(why),
             _ => LedgerError::NotALedger(path.to_path_buf()),
@@ -365,6 +366,28 @@ fn free_bytes(_dir: &Path) -> Option<u64> {
     None
 }
 
+/// A write killed mid-commit leaves a hot rollback journal, which a
+/// read-only connection cannot roll back (SQLite refuses the read). Let a
+/// read-write connection do SQLite's own crash recovery first, which puts
+/// back the state of the last commit and writes nothing new. Where that
+/// cannot be done (read-only media), the read-only open reports the error.
+fn recover_hot_journal(path: &Path) {
+    let mut journal = path.as_os_str().to_owned();
+    journal.push("-journal");
+    let hot = std::fs::metadata(&journal).is_ok_and(|m| m.len() > 0);
+    if !hot {
+        return;
+    }
+    let flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+    if let Ok(conn) = Connection::open_with_flags(path, flags) {
+        let _ = conn.busy_timeout(BUSY_TIMEOUT);
+        // Any read runs the recovery.
+        let _ = conn.query_row("SELECT count(*) FROM sqlite_master", [], |r| {
+            r.get::<_, i64>(0)
+        });
+    }
+}
+
 /// Create the ledger file with mode 0600, failing if anything is there.
 fn create_private_file(path: &Path) -> Result<()> {
     let mut options = std::fs::OpenOptions::new();
@@ -430,6 +453,56 @@ mod tests {
             Err(LedgerError::NotFound(_))
         ));
         assert!(!dir.path().join("missing.db").exists());
+    }
+
+    /// Child half of the test below: spill a big write into the ledger
+    /// file with its rollback journal on disk, then die without rolling back.
+    #[test]
+    fn hot_journal_child() {
+        let Ok(path) = std::env::var("FLUE_TEST_HOT_JOURNAL") else {
+            return;
+        };
+        let conn = Connection::open(&path).unwrap();
+        conn.execute_batch(
+            "PRAGMA journal_mode=DELETE; PRAGMA cache_size=2; BEGIN;
+             WITH RECURSIVE n(i) AS (SELECT 1 UNION ALL SELECT i + 1 FROM n WHERE i < 5000)
+             INSERT INTO import_batches (id, kind, file_name, sha256, rows_added, rows_corrected, rows_present, imported_at, imported_by)
+             SELECT i, 'fuel', 'f' || i || '.csv', printf('%064d', i), 0, 0, 0, 't', 'u' FROM n;",
+        )
+        .unwrap();
+        std::process::abort();
+    }
+
+    #[test]
+    fn a_hot_journal_left_by_a_killed_write_is_rolled_back_before_a_read_only_open() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("l.db");
+        drop(Ledger::create(&path).unwrap());
+        let before = std::fs::read(&path).unwrap();
+        let status = std::process::Command::new(std::env::current_exe().unwrap())
+            .args(["--exact", "ledger::tests::hot_journal_child", "--nocapture"])
+            .env("FLUE_TEST_HOT_JOURNAL", &path)
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .status()
+            .unwrap();
+        assert!(!status.success(), "the child must die mid-write");
+        let journal = dir.path().join("l.db-journal");
+        assert!(
+            std::fs::metadata(&journal).unwrap().len() > 0,
+            "the child left a hot journal"
+        );
+        assert_ne!(
+            std::fs::read(&path).unwrap(),
+            before,
+            "pages were spilled into the file"
+        );
+        let ledger = Ledger::open_read_only(&path).unwrap();
+        let v = ledger.verify().unwrap();
+        assert!(v.problems.is_empty(), "{:?}", v.problems);
+        assert_eq!(v.entry_count, 0);
+        drop(ledger);
+        assert!(!journal.exists() || std::fs::metadata(&journal).unwrap().len() == 0);
     }
 
     /// A schema-4 ledger: the migrations before hourly blocks.
