@@ -16,6 +16,7 @@
 
 use assert_cmd::Command;
 use serde_json::Value;
+use sha2::Digest;
 use std::path::{Path, PathBuf};
 
 const SITE: &str = r#"
@@ -415,11 +416,252 @@ fn the_same_id_with_other_content_is_refused_naming_the_field() {
     let (code, _, err) = plant.run(&["import", "allowances", "changed.csv"]);
     assert_eq!(code, 1);
     assert!(err.contains("changed.csv:2:9: field price"), "{err}");
+    assert!(err.contains("held \"400.00\", here \"401.00\""), "{err}");
+    assert!(err.contains("--correct REASON"), "{err}");
+    assert_eq!(plant.ledger_bytes(), before);
+}
+
+// ---- corrections (DESIGN.md: `--correct REASON` supersedes the held row) ----
+
+impl Plant {
+    /// `flue verify` passes: every accepted write keeps the journal whole.
+    fn verified(&self) {
+        let out = self.ok(&["verify"]);
+        assert!(out.contains(": intact: "), "{out}");
+    }
+
+    fn refused(&self, args: &[&str]) -> String {
+        let before = self.ledger_bytes();
+        let (code, _, err) = self.run(args);
+        assert_eq!(code, 1, "flue {args:?}: {err}");
+        assert_eq!(self.ledger_bytes(), before, "a refused command wrote");
+        err
+    }
+}
+
+const HEADER: &str = "id,date,kind,program,vintage,quantity,from,to,price,note\n";
+
+/// A25 allocated 380, not 350 (an invented registry statement).
+const A25_FIXED: &str = "A25,2025-02-01,allocation,SO2-ANNUAL,2025,380,,P-COMP,,current\n";
+
+#[test]
+fn a_correction_supersedes_the_held_transaction_and_moves_the_year_by_its_difference() {
+    let plant = Plant::new();
+    plant.write("fix.csv", &format!("{HEADER}{A25_FIXED}"));
+    let err = plant.refused(&["import", "allowances", "fix.csv"]);
+    assert!(err.contains("fix.csv:2:6: field quantity"), "{err}");
+    assert!(err.contains("held \"350\", here \"380\""), "{err}");
+    assert!(err.contains("--correct REASON"), "{err}");
+
+    let before = reconcile(&plant, "SO2-ANNUAL", "2025");
+    let out = plant.ok(&[
+        "import",
+        "allowances",
+        "fix.csv",
+        "--correct",
+        "registry statement shows 380",
+    ]);
     assert!(
-        err.contains("\"400.00\"") && err.contains("\"401.00\""),
+        out.contains("0 new, 1 corrected, 0 already present"),
+        "{out}"
+    );
+    plant.verified();
+    // 30 more of vintage 2025 held at the deadline: eligible 1250 + 30, the
+    // required 1201 unchanged (tons do not move), so 30 more carried forward.
+    let after = reconcile(&plant, "SO2-ANNUAL", "2025");
+    assert_eq!(after["eligible_held"], 1280);
+    assert_eq!(after["allowances_required"], before["allowances_required"]);
+    assert_eq!(after["carried_forward"], 79);
+    assert_eq!(after["by_vintage"][1]["held"], 480);
+    // The position on 2025-06-30 (see position_states_its_projection_method): 1150 + 30 held, 868 - 30 to buy.
+    let p = plant.json(&[
+        "allowances",
+        "position",
+        "--program",
+        "SO2-ANNUAL",
+        "--as-of",
+        "2025-06-30",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(p["eligible_held"], 1180);
+    assert_eq!(p["to_buy"], 838);
+
+    // The corrected row again is a no-op, with or without --correct.
+    let bytes = plant.ledger_bytes();
+    for extra in [&[][..], &["--correct", "again"][..]] {
+        let mut args = vec!["import", "allowances", "fix.csv"];
+        args.extend_from_slice(extra);
+        let out = plant.ok(&args);
+        assert!(
+            out.contains("nothing new: all 1 rows already present"),
+            "{out}"
+        );
+        assert_eq!(plant.ledger_bytes(), bytes);
+    }
+    // The original file now differs from the version in force.
+    let err = plant.refused(&["import", "allowances", "allowances.csv"]);
+    assert!(err.contains("allowances.csv:3:6: field quantity"), "{err}");
+    assert!(err.contains("held \"380\", here \"350\""), "{err}");
+
+    // Both versions stay readable; the correction is in force.
+    let h = plant.json(&["history", "transaction", "A25", "--format", "json"]);
+    let v = h["versions"].as_array().unwrap();
+    assert_eq!(v.len(), 2);
+    let quantity = |i: usize| v[i]["values"]["quantity"].as_str().unwrap().to_string();
+    assert_eq!((quantity(0), quantity(1)), ("350".into(), "380".into()));
+    assert_eq!(v[0]["in_force"], false);
+    assert_eq!(v[0]["superseded_by"], 2);
+    assert_eq!(v[0]["source"]["file"], "allowances.csv");
+    assert_eq!(v[0]["source"]["line"], 3);
+    assert_eq!(v[1]["in_force"], true);
+    assert_eq!(v[1]["source"]["file"], "fix.csv");
+    assert_eq!(v[1]["source"]["line"], 2);
+    // SHA-256 (FIPS 180-4, by the sha2 crate) of the file as written.
+    let sha = sha2::Sha256::digest(format!("{HEADER}{A25_FIXED}").as_bytes());
+    let hex: String = sha.iter().map(|b| format!("{b:02x}")).collect();
+    assert_eq!(v[1]["source"]["sha256"], hex);
+    assert_eq!(v[1]["import"]["imported_by"], "tester");
+    assert_eq!(v[1]["supersedes"]["version"], 1);
+    assert_eq!(v[1]["supersedes"]["reason"], "registry statement shows 380");
+    assert_eq!(
+        v[1]["values"]["seq"], v[0]["values"]["seq"],
+        "a correction keeps its place"
+    );
+    let text = plant.ok(&["history", "transaction", "A25"]);
+    assert!(text.contains("2 versions, version 2 in force"), "{text}");
+    assert!(
+        text.contains("IN FORCE") && text.contains("version 1: registry statement shows 380"),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_correction_that_would_overdraw_is_refused_naming_its_line() {
+    let plant = Plant::new();
+    // P-GEN bought 150 and sold 20 on 2025-08-01: buying 10 leaves the sale
+    // short; selling 200 of 150 overdraws at once. Line 2 alone is fine, but
+    // the import is all or nothing.
+    plant.write(
+        "over.csv",
+        &format!(
+            "{HEADER}{A25_FIXED}\
+             BUY,2025-04-10,transfer,SO2-ANNUAL,2025,10,MKT,P-GEN,400.00,purchase\n\
+             SALE,2025-08-01,transfer,SO2-ANNUAL,2025,200,P-GEN,MKT,450.00,sale\n"
+        ),
+    );
+    let err = plant.refused(&["import", "allowances", "over.csv", "--correct", "typo"]);
+    assert!(
+        err.contains(
+            "over.csv:3:2: field date: dated 2025-04-10, it would refuse transaction SALE"
+        ),
         "{err}"
     );
-    assert_eq!(plant.ledger_bytes(), before);
+    assert!(err.contains("held 10, asked 20"), "{err}");
+    assert!(err.contains("over.csv:4:6: field quantity"), "{err}");
+    assert!(err.contains("held 150, asked 200"), "{err}");
+    assert!(!err.contains("over.csv:2:"), "{err}");
+    // An id twice in a correcting file is refused, naming both lines.
+    plant.write("twice.csv", &format!("{HEADER}{A25_FIXED}{A25_FIXED}"));
+    let err = plant.refused(&["import", "allowances", "twice.csv", "--correct", "typo"]);
+    assert!(err.contains("twice.csv:3:1: field id"), "{err}");
+    assert!(err.contains("on lines 2 and 3"), "{err}");
+    // A reason is required: an empty one is a usage error.
+    assert_eq!(
+        plant
+            .run(&["import", "allowances", "over.csv", "--correct", " "])
+            .0,
+        2
+    );
+}
+
+#[test]
+fn settled_and_certified_years_guard_their_transactions() {
+    let plant = Plant::new();
+    plant.ok(&[
+        "allowances",
+        "settle",
+        "--program",
+        "NOX-OZONE",
+        "--year",
+        "2025",
+    ]);
+    plant.verified();
+    // N25 counts in the NOx year 2025 the settlement froze.
+    plant.write(
+        "nox.csv",
+        &format!("{HEADER}N25,2025-02-01,allocation,NOX-OZONE,2025,60,,P-COMP,,\n"),
+    );
+    let err = plant.refused(&["import", "allowances", "nox.csv", "--correct", "typo"]);
+    assert!(err.contains("nox.csv:2:2: field date"), "{err}");
+    assert!(
+        err.contains("program NOX-OZONE, year 2025 is settled (on 2026-03-10T09:00:00Z by tester)"),
+        "{err}"
+    );
+    assert!(err.contains("frozen"), "{err}");
+
+    plant.ok(&[
+        "certify",
+        "--year",
+        "2025",
+        "--by",
+        "A. Official",
+        "--out",
+        "receipt.json",
+    ]);
+    let report = || plant.json(&["report", "annual", "--year", "2025", "--format", "json"]);
+    assert_eq!(report()["certification"]["amended"], false);
+    plant.write("fix.csv", &format!("{HEADER}{A25_FIXED}"));
+    let err = plant.refused(&["import", "allowances", "fix.csv", "--correct", "registry"]);
+    assert!(
+        err.contains("year 2025 is certified (by A. Official"),
+        "{err}"
+    );
+    assert!(err.contains("--amend"), "{err}");
+    assert_eq!(
+        plant.run(&["import", "allowances", "fix.csv", "--amend"]).0,
+        2
+    );
+    // A correction moving A26 out of 2025 touches 2025 too (its held version).
+    plant.write(
+        "move.csv",
+        &format!("{HEADER}A26,2026-01-05,allocation,SO2-ANNUAL,2026,500,,P-COMP,,future\n"),
+    );
+    let err = plant.refused(&["import", "allowances", "move.csv", "--correct", "date"]);
+    assert!(err.contains("year 2025 is certified"), "{err}");
+    // A correction of 2024 alone needs no --amend: only 2025 is certified.
+    plant.write(
+        "a24.csv",
+        &format!("{HEADER}A24,2024-02-01,allocation,SO2-ANNUAL,2024,810,,P-COMP,,banked\n"),
+    );
+    plant.ok(&[
+        "import",
+        "allowances",
+        "a24.csv",
+        "--correct",
+        "registry 2024",
+    ]);
+    plant.verified();
+    assert_eq!(report()["certification"]["amended"], false);
+
+    let out = plant.ok(&[
+        "import",
+        "allowances",
+        "fix.csv",
+        "--correct",
+        "registry",
+        "--amend",
+    ]);
+    assert!(out.contains("1 corrected"), "{out}");
+    plant.verified();
+    let r = report();
+    assert_eq!(r["certification"]["amended"], true);
+    assert_eq!(r["certification"]["amendments"][0]["reason"], "registry");
+    // 800 + 10 (A24) + 450 + 30 (A25) held at the deadline.
+    assert_eq!(
+        reconcile(&plant, "SO2-ANNUAL", "2025")["eligible_held"],
+        1290
+    );
 }
 
 #[test]

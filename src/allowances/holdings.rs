@@ -12,7 +12,11 @@
 //!   sequence; `external` accounts and the issuer may go negative;
 //! - a serial number is held by at most one holder;
 //! - an id names one transaction: the same id with the same content is a
-//!   no-op, with other content it is refused.
+//!   no-op, with other content it is refused, unless the batch supersedes
+//!   (`OnConflict::Supersede`, from `--correct REASON`): then the book is
+//!   rebuilt in order of recording with the new version in the old one's
+//!   place, and every rule above must still hold. A settlement's rows are
+//!   never superseded.
 
 use super::serials::{Blocks, SerialBlock};
 use crate::site::{Account, AccountKind, Program};
@@ -254,6 +258,8 @@ pub enum TxError {
         later_id: String,
         source: Box<TxError>,
     },
+    #[error("id {id}: written by a settlement ({kind}); a settlement's transactions never change")]
+    SettlementRow { id: String, kind: TransactionKind },
     #[error(
         "id {id}: already held with other content: field {field}: held {held:?}, found {found:?}"
     )]
@@ -281,6 +287,17 @@ pub enum Applied {
     Recorded,
     /// The same id with the same content was already held: nothing changed.
     AlreadyHeld,
+    /// The same id with other content superseded the version held.
+    Corrected,
+}
+
+/// What a batch does with an id already held with other content.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum OnConflict {
+    /// Refuse the row (`TxError::Conflict`).
+    Refuse,
+    /// Supersede the held version (`--correct REASON`).
+    Supersede,
 }
 
 /// Where one holder's allowances of one program and vintage are kept.
@@ -504,6 +521,8 @@ pub struct Book {
     programs: BTreeSet<String>,
     transactions: Vec<Transaction>,
     by_id: HashMap<String, Transaction>,
+    /// Ids in order of recording: a corrected transaction keeps its place.
+    recorded: Vec<String>,
     holdings: Holdings,
 }
 
@@ -515,8 +534,14 @@ impl Book {
             programs: programs.iter().map(|p| p.id.clone()).collect(),
             transactions: Vec::new(),
             by_id: HashMap::new(),
+            recorded: Vec::new(),
             holdings: Holdings::default(),
         }
+    }
+
+    /// The version held of transaction `id`.
+    pub fn transaction(&self, id: &str) -> Option<&Transaction> {
+        self.by_id.get(id)
     }
 
     /// The accepted transactions, by date and then order of recording.
@@ -694,19 +719,78 @@ impl Book {
             self.holdings = holdings;
         }
         self.by_id.insert(tx.id.clone(), tx.clone());
+        self.recorded.push(tx.id.clone());
         self.transactions.insert(at, tx);
         Ok(Applied::Recorded)
+    }
+
+    /// Apply one transaction, superseding the version held of its id if
+    /// that differs. A refusal leaves the book as it was.
+    ///
+    /// The book is rebuilt from an empty one, every held transaction in
+    /// order of recording with `tx` in its id's place, so the result is the
+    /// book the stored versions in force replay to. A refusal of another
+    /// transaction is reported as `BreaksLater` naming it.
+    pub fn supersede(&mut self, tx: Transaction) -> Result<Applied, TxError> {
+        let Some(held) = self.by_id.get(&tx.id) else {
+            return self.apply(tx);
+        };
+        if held.first_difference(&tx).is_none() {
+            return Ok(Applied::AlreadyHeld);
+        }
+        if held.kind.settles_year().is_some() {
+            return Err(TxError::SettlementRow {
+                id: tx.id.clone(),
+                kind: held.kind,
+            });
+        }
+        let mut rebuilt = Book {
+            accounts: self.accounts.clone(),
+            programs: self.programs.clone(),
+            transactions: Vec::with_capacity(self.transactions.len()),
+            by_id: HashMap::with_capacity(self.by_id.len()),
+            recorded: Vec::with_capacity(self.recorded.len()),
+            holdings: Holdings::default(),
+        };
+        for id in &self.recorded {
+            if *id == tx.id {
+                rebuilt.apply(tx.clone())?;
+            } else {
+                rebuilt
+                    .apply(self.by_id[id].clone())
+                    .map_err(|e| TxError::BreaksLater {
+                        date: tx.date,
+                        later_id: id.clone(),
+                        source: Box::new(e),
+                    })?;
+            }
+        }
+        *self = rebuilt;
+        Ok(Applied::Corrected)
     }
 
     /// Apply a batch, all or nothing: every row is tried (a refused row is
     /// skipped so later rows are still checked), and if any is refused the
     /// book is left as it was and every refusal is returned.
     pub fn apply_all(&mut self, txs: &[Transaction]) -> Result<Vec<Applied>, Vec<RowError>> {
+        self.apply_batch(txs, OnConflict::Refuse)
+    }
+
+    /// `apply_all`, with held ids of other content refused or superseded.
+    pub fn apply_batch(
+        &mut self,
+        txs: &[Transaction],
+        on_conflict: OnConflict,
+    ) -> Result<Vec<Applied>, Vec<RowError>> {
         let mut work = self.clone();
         let mut applied = Vec::with_capacity(txs.len());
         let mut errors = Vec::new();
         for (index, tx) in txs.iter().enumerate() {
-            match work.apply(tx.clone()) {
+            let result = match on_conflict {
+                OnConflict::Refuse => work.apply(tx.clone()),
+                OnConflict::Supersede => work.supersede(tx.clone()),
+            };
+            match result {
                 Ok(a) => applied.push(a),
                 Err(error) => errors.push(RowError {
                     index,

@@ -23,8 +23,8 @@ pub mod settle;
 pub use cost::{cost_summary, CostError, CostSummary};
 pub use emissions::{season_tons, EmissionsError};
 pub use holdings::{
-    Applied, Balance, Book, HeldBlock, Holder, HoldingKey, Holdings, RowError, Transaction,
-    TransactionKind, TxError, QUANTITY_MAX,
+    Applied, Balance, Book, HeldBlock, Holder, HoldingKey, Holdings, OnConflict, RowError,
+    Transaction, TransactionKind, TxError, QUANTITY_MAX,
 };
 pub use position::{
     period, position, same_day_previous_year, Position, PositionError, PreviousYear,

@@ -990,6 +990,110 @@ fn a_settlement_that_would_overdraw_a_later_sale_is_refused() {
     assert!(!b.is_settled("SO2", 2024));
 }
 
+// ---- corrections (DESIGN.md: a correction supersedes the held row) ----
+
+#[test]
+fn a_correction_replaces_the_held_version_in_its_place_and_moves_holdings_by_the_difference() {
+    let mut b = book();
+    b.apply_all(&[
+        allocate("a", "2025-01-10", 2025, 100, C),
+        transfer("t", "2025-01-10", 2025, 30, C, G),
+        transfer("u", "2025-01-05", 2025, 5, X, C),
+    ])
+    .expect("valid");
+    let before = b.holdings().count(&acct(C), "SO2", 2025);
+    assert_eq!(before, 100 - 30 + 5);
+    // Without superseding, other content is a conflict; identical content is a no-op.
+    let fixed = allocate("a", "2025-01-10", 2025, 120, C);
+    assert!(matches!(
+        b.apply(fixed.clone()),
+        Err(TxError::Conflict {
+            field: "quantity",
+            ..
+        })
+    ));
+    assert_eq!(
+        b.supersede(allocate("a", "2025-01-10", 2025, 100, C)),
+        Ok(Applied::AlreadyHeld)
+    );
+    assert_eq!(b.supersede(fixed.clone()), Ok(Applied::Corrected));
+    // Double entry: the account moves by exactly the 20 corrected, the issuer by -20.
+    assert_eq!(b.holdings().count(&acct(C), "SO2", 2025), before + 20);
+    assert_eq!(b.holdings().count(&Holder::Issuer, "SO2", 2025), -120);
+    assert_eq!(b.transaction("a"), Some(&fixed));
+    // The order (date, order of recording) is kept: "a" still precedes "t" on 2025-01-10.
+    let ids: Vec<&str> = b.transactions().iter().map(|t| t.id.as_str()).collect();
+    assert_eq!(ids, ["u", "a", "t"]);
+    assert_eq!(b.supersede(fixed), Ok(Applied::AlreadyHeld));
+}
+
+#[test]
+fn a_correction_that_would_overdraw_a_later_transaction_is_refused_and_changes_nothing() {
+    let mut b = book();
+    b.apply_all(&[
+        allocate("a", "2025-01-10", 2025, 100, C),
+        transfer("t", "2025-02-01", 2025, 80, C, G),
+    ])
+    .expect("valid");
+    let held = b.holdings().clone();
+    // 70 allocated cannot cover the 80 moved on 2025-02-01: no negative balance.
+    let e = b
+        .apply_batch(
+            &[allocate("a", "2025-01-10", 2025, 70, C)],
+            OnConflict::Supersede,
+        )
+        .unwrap_err();
+    assert_eq!(e.len(), 1);
+    assert_eq!(e[0].index, 0);
+    match &e[0].error {
+        TxError::BreaksLater {
+            later_id, source, ..
+        } => {
+            assert_eq!(later_id, "t");
+            assert!(
+                matches!(
+                    **source,
+                    TxError::Overdraft {
+                        held: 70,
+                        asked: 80,
+                        ..
+                    }
+                ),
+                "{source}"
+            );
+        }
+        other => panic!("expected BreaksLater, got {other}"),
+    }
+    assert_eq!(b.holdings(), &held);
+    // The correction itself may overdraw too: 100 held, 120 asked.
+    let e = b
+        .supersede(transfer("t", "2025-02-01", 2025, 120, C, G))
+        .unwrap_err();
+    assert!(
+        matches!(
+            e,
+            TxError::Overdraft {
+                held: 100,
+                asked: 120,
+                ..
+            }
+        ),
+        "{e}"
+    );
+    assert_eq!(b.holdings(), &held);
+}
+
+#[test]
+fn a_settlement_row_is_never_superseded() {
+    let (mut b, rec) = settled_book();
+    let s = settlement(&rec, 8);
+    b.record_settlement(&s).expect("first settlement");
+    let mut changed = s.transactions[0].clone();
+    changed.quantity -= 1;
+    let e = b.supersede(changed).unwrap_err();
+    assert!(matches!(e, TxError::SettlementRow { .. }), "{e}");
+}
+
 // ---- position ----
 
 fn position_of(

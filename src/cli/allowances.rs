@@ -174,9 +174,14 @@ pub struct PositionArgs {
 #[derive(Debug, Args)]
 pub struct ImportAllowancesArgs {
     pub file: PathBuf,
-    /// Refused: a held transaction never changes; record an adjustment instead.
-    #[arg(long, value_name = "REASON")]
+    /// Supersede transactions held with other values; the old versions stay
+    /// readable (`flue history transaction ID`). A settled year's
+    /// transactions are frozen and are not corrected.
+    #[arg(long, value_name = "REASON", value_parser = super::import::non_empty)]
     pub correct: Option<String>,
+    /// Allow a correction to touch a certified year, recording an amendment.
+    #[arg(long, requires = "correct")]
+    pub amend: bool,
     #[command(flatten)]
     pub facility: FacilityArg,
 }
@@ -216,19 +221,15 @@ pub fn program_reports(
 }
 
 pub fn run_import(args: &ImportAllowancesArgs, ledger_path: &Path) -> super::Outcome {
-    if args.correct.is_some() {
-        bail!(
-            "{}: --correct: a held allowance transaction never changes; record an adjustment transaction instead",
-            args.file.display()
-        );
-    }
     let mut ledger = Ledger::open(ledger_path)?;
+    ledger.set_amend(args.correct.clone().filter(|_| args.amend));
     let file = InputFile::read(&args.file)?;
     ledger.check_free_space(file.bytes.len() as u64)?;
     let outcome = import(
         &mut ledger,
         &file,
         args.facility.facility.as_deref(),
+        args.correct.as_deref(),
         &super::stamp(),
     )?;
     println!("{}: {outcome}", args.file.display());

@@ -101,7 +101,7 @@ pub fn run(args: &DemoArgs) -> super::Outcome {
         None,
         &stamp,
     )?;
-    let al = allowances::import(&mut ledger, &input("allowances.csv")?, None, &stamp)?;
+    let al = allowances::import(&mut ledger, &input("allowances.csv")?, None, None, &stamp)?;
     let (_, settled) =
         allowances::settle(&mut ledger, None, DEMO_SETTLED_PROGRAM, DEMO_YEAR, &stamp)?;
     super::note(format_args!("demo ledger: {}", ledger_path.display()));

@@ -24,7 +24,9 @@ pub enum ImportCommand {
     Hourly(ImportArgs),
     /// Allowance transactions: id,date,kind,program,vintage,quantity,from,to,price,note[,serial_from,serial_to]
     /// (kind allocation, transfer or adjustment; an empty from or to is the program's issuer)
-    #[command(after_help = "Example:\n  flue import allowances samples/allowances.csv")]
+    #[command(
+        after_help = "Examples:\n  flue import allowances samples/allowances.csv\n  flue import allowances fix.csv --correct \"registry statement: 1,150 allocated, not 1,500\""
+    )]
     Allowances(super::allowances::ImportAllowancesArgs),
 }
 
@@ -47,7 +49,7 @@ pub(super) fn non_empty_name(s: &str) -> Result<String, String> {
     }
 }
 
-fn non_empty(s: &str) -> Result<String, String> {
+pub(super) fn non_empty(s: &str) -> Result<String, String> {
     if s.trim().is_empty() {
         Err("a correction needs a reason".into())
     } else {

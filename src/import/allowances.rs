@@ -8,19 +8,26 @@
 //! only if every one is accepted (RELIABILITY.md R1, R4, R5). An identical
 //! re-import writes nothing, not even a batch row.
 //!
-//! A transaction is never corrected in place or superseded: a mistake is
-//! undone by a later `adjustment`, as registries do, so `--correct` is
-//! refused here.
+//! An id held with other content is refused unless the import says
+//! `--correct REASON` (DESIGN.md): then the row supersedes the version in
+//! force, written to `allowance_corrections`, never over the held row. The
+//! book is rebuilt in order of recording with the new version in the old
+//! one's place (`Book::supersede`) and must pass every rule. A settlement's
+//! own rows are never corrected, and neither is a transaction whose held or
+//! new version lies in a settled year's scope (`settled_conflict`): the
+//! settlement froze that year's holdings at its true-up day.
 
 use super::{parse_rows, Fields, InputFile, Outcome, Stamp};
 use crate::allowances::{
     cost_summary, held_at_true_up, position, reconcile, same_day_previous_year, season_tons,
-    settlement, Applied, Book, CostSummary, Holder, Position, PreviousYear, Reconciliation,
-    RowError as TxRowError, SerialBlock, Transaction, TransactionKind, TxError, QUANTITY_MAX,
+    settlement, Applied, Book, CostSummary, Holder, OnConflict, Position, PreviousYear,
+    Reconciliation, RowError as TxRowError, SerialBlock, Transaction, TransactionKind, TxError,
+    QUANTITY_MAX,
 };
 use crate::csvread::{FileErrors, RowError};
 use crate::ledger::{
-    AllowanceReads, Ledger, LedgerError, NewBatch, NewSettlement, Reads, StoredSettlement, Tx,
+    AllowanceReads, Ledger, LedgerError, NewBatch, NewCorrection, NewSettlement, Reads,
+    StoredSettlement, Tx,
 };
 use crate::site::{Program, Site};
 use crate::units::Tons;
@@ -264,6 +271,7 @@ fn field_of(e: &TxError) -> &'static str {
         | TxError::SerialNotHeld { .. }
         | TxError::SerialHeldElsewhere { .. } => "serial_from",
         TxError::BreaksLater { .. } => "date",
+        TxError::SettlementRow { .. } => "id",
         TxError::Conflict { field, .. } => field,
     }
 }
@@ -275,8 +283,8 @@ fn message_of(e: &TxError) -> String {
         TxError::Conflict {
             id, held, found, ..
         } => format!(
-            "transaction {id} is already held with other content: held {held:?}, found {found:?}; \
-             a held transaction never changes (record an adjustment instead)"
+            "transaction {id} is already held with other values (held {held:?}, here {found:?}); \
+             to supersede it, import with --correct REASON"
         ),
         other => {
             let text = other.to_string();
@@ -308,9 +316,11 @@ impl From<TxRowError> for Refusal {
     }
 }
 
-/// A settled year is closed: a new transaction dated on or before its
-/// true-up day that touches the program's account would change the
-/// reconciliation the settlement wrote, so it is refused.
+/// A settled year is closed: a transaction of the program's account dated
+/// on or before the settlement's true-up day counts in the holdings the
+/// settlement deducted from, so writing one would change the
+/// reconciliation the settlement froze. A new transaction in that scope is
+/// refused, and so is a correction whose held or new version is in it.
 fn settled_conflict(
     site: &Site,
     settlements: &[StoredSettlement],
@@ -324,11 +334,26 @@ fn settled_conflict(
             && (tx.from == account || tx.to == account))
             .then(|| {
                 format!(
-                    "program {}, year {} is settled: a transaction of account {} dated {}, on or before its true-up day {}, would change it",
-                    s.program, s.year, program.account, tx.date, s.true_up_date
+                    "program {}, year {} is settled (on {} by {}): a transaction of account {} dated {}, on or before its true-up day {}, would change it",
+                    s.program, s.year, s.settled_at, s.settled_by, program.account, tx.date, s.true_up_date
                 )
             })
     })
+}
+
+/// `settled_conflict` for a correction: its new version, then the version
+/// in force it would supersede.
+fn settled_correction(
+    site: &Site,
+    settlements: &[StoredSettlement],
+    held: &Transaction,
+    new: &Transaction,
+) -> Option<String> {
+    let frozen = "; a settled year's holdings are frozen, so this correction is refused";
+    if let Some(m) = settled_conflict(site, settlements, new) {
+        return Some(format!("{m}{frozen}"));
+    }
+    settled_conflict(site, settlements, held).map(|m| format!("the version held: {m}{frozen}"))
 }
 
 /// Where new transactions come from, for the batch row and errors.
@@ -337,29 +362,72 @@ struct Origin<'a> {
     sha256: &'a str,
 }
 
-/// Apply `rows` to the stored book and write the new ones, all or nothing.
-/// `refuse` turns the refused rows into the command's error.
+/// Refuse an id that appears twice in one correcting file: which row would
+/// supersede which is not for the order of lines to decide.
+fn twice(rows: &[(usize, Transaction)]) -> Vec<Refusal> {
+    let mut first: HashMap<&str, usize> = HashMap::new();
+    let mut out = Vec::new();
+    for (index, (line, t)) in rows.iter().enumerate() {
+        if let Some(earlier) = first.insert(&t.id, *line) {
+            out.push(Refusal {
+                index,
+                id: t.id.clone(),
+                field: "id",
+                message: format!(
+                    "transaction {} appears twice in this file, on lines {earlier} and {line}; a correction names each id once",
+                    t.id
+                ),
+            });
+        }
+    }
+    out
+}
+
+/// Apply `rows` to the stored book and write the new ones and, with
+/// `correct` (the reason), the corrections; all or nothing. `refuse` turns
+/// the refused rows into the command's error.
 fn record(
     tx: &Tx,
     site: &Site,
     origin: &Origin,
     stamp: &Stamp,
     rows: &[(usize, Transaction)],
+    correct: Option<&str>,
     refuse: impl Fn(Vec<Refusal>) -> AllowanceError,
 ) -> Result<Outcome, AllowanceError> {
-    let mut book = tx.allowance_book(site)?;
+    if correct.is_some() {
+        let dup = twice(rows);
+        if !dup.is_empty() {
+            return Err(refuse(dup));
+        }
+    }
+    let held = tx.allowance_book(site)?;
+    let mut book = held.clone();
     let news: Vec<Transaction> = rows.iter().map(|(_, t)| t.clone()).collect();
+    let on_conflict = match correct {
+        Some(_) => OnConflict::Supersede,
+        None => OnConflict::Refuse,
+    };
     let applied = book
-        .apply_all(&news)
+        .apply_batch(&news, on_conflict)
         .map_err(|rows| refuse(rows.into_iter().map(Refusal::from).collect()))?;
     let settlements = tx.allowance_settlements(&site.facility.id)?;
     let closed: Vec<Refusal> = rows
         .iter()
         .zip(&applied)
         .enumerate()
-        .filter(|(_, (_, a))| **a == Applied::Recorded)
-        .filter_map(|(index, ((_, t), _))| {
-            settled_conflict(site, &settlements, t).map(|message| Refusal {
+        .filter_map(|(index, ((_, t), a))| {
+            let message = match a {
+                Applied::Recorded => settled_conflict(site, &settlements, t),
+                Applied::Corrected => {
+                    let was = held
+                        .transaction(&t.id)
+                        .expect("a correction supersedes a held id");
+                    settled_correction(site, &settlements, was, t)
+                }
+                Applied::AlreadyHeld => None,
+            }?;
+            Some(Refusal {
                 index,
                 id: t.id.clone(),
                 field: "date",
@@ -370,33 +438,50 @@ fn record(
     if !closed.is_empty() {
         return Err(refuse(closed));
     }
+    let count = |which: Applied| applied.iter().filter(|a| **a == which).count();
     let done = Outcome {
-        added: applied.iter().filter(|a| **a == Applied::Recorded).count(),
-        corrected: 0,
-        present: applied
-            .iter()
-            .filter(|a| **a == Applied::AlreadyHeld)
-            .count(),
+        added: count(Applied::Recorded),
+        corrected: count(Applied::Corrected),
+        present: count(Applied::AlreadyHeld),
     };
-    if done.added == 0 {
+    if done.added == 0 && done.corrected == 0 {
         return Ok(done);
     }
+    let reason = correct.filter(|_| done.corrected > 0);
     let batch = tx.insert_batch(&NewBatch {
         kind: "allowances",
         file_name: origin.file_name,
         sha256: origin.sha256,
         rows_added: done.added,
-        rows_corrected: 0,
+        rows_corrected: done.corrected,
         rows_present: done.present,
         at: &stamp.at,
         by: &stamp.by,
-        reason: None,
+        reason,
     })?;
+    // The version each correction supersedes: the latest correction in force, or the original.
+    let in_force: HashMap<String, Option<i64>> = tx
+        .allowance_transactions(&site.facility.id)?
+        .into_iter()
+        .map(|s| (s.value.id, s.correction_id))
+        .collect();
     let mut seq = tx.next_allowance_seq()?;
     for ((line, t), a) in rows.iter().zip(&applied) {
-        if *a == Applied::Recorded {
-            tx.insert_allowance_transaction(seq, batch, *line, &site.facility.id, t)?;
-            seq += 1;
+        match a {
+            Applied::Recorded => {
+                tx.insert_allowance_transaction(seq, batch, *line, &site.facility.id, t)?;
+                seq += 1;
+            }
+            Applied::Corrected => tx.insert_allowance_correction(&NewCorrection {
+                batch_id: batch,
+                line: *line,
+                corrects_id: *in_force
+                    .get(&t.id)
+                    .expect("a correction supersedes a held id"),
+                reason: reason.expect("a correction has a reason"),
+                value: t,
+            })?,
+            Applied::AlreadyHeld => {}
         }
     }
     // Second line of defence (RELIABILITY.md R5): what was written replays
@@ -410,11 +495,12 @@ fn record(
     Ok(done)
 }
 
-/// `flue import allowances FILE.csv`: every row or none.
+/// `flue import allowances FILE.csv [--correct REASON]`: every row or none.
 pub fn import(
     ledger: &mut Ledger,
     file: &InputFile,
     facility: Option<&str>,
+    correct: Option<&str>,
     stamp: &Stamp,
 ) -> Result<Outcome, AllowanceError> {
     let parsed = parse(file)?;
@@ -472,6 +558,7 @@ pub fn import(
             },
             stamp,
             &parsed.rows,
+            correct,
             refuse,
         )
     })
@@ -510,6 +597,7 @@ pub fn transfer(
             },
             stamp,
             &[(1, t.clone())],
+            None,
             refuse,
         )
     })

@@ -2,7 +2,9 @@
 //!
 //! Stored transactions are read back in order of recording (`seq`), which
 //! is the order the book applied them in, so replaying them rebuilds the
-//! same book. Every row read is checked again against the rules the schema
+//! same book. A transaction reads as its version in force: the original row,
+//! or its latest correction (schema/0006_allowance_corrections.sql), at the
+//! original's `seq`. Every row read is checked again against the rules the schema
 //! states, and a row that breaks them is reported as a damaged ledger.
 
 use super::{LedgerError, Reads, Result, Tx};
@@ -12,14 +14,27 @@ use chrono::NaiveDate;
 use rusqlite::{params, Row};
 use rust_decimal::Decimal;
 
-/// A transaction as stored, with where it came from.
+/// A transaction's version in force, with where that version came from.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct StoredTransaction {
     pub seq: i64,
     pub batch_id: i64,
     pub file: String,
     pub line: usize,
+    /// The `allowance_corrections` row in force; `None` for the original.
+    pub correction_id: Option<i64>,
     pub value: Transaction,
+}
+
+/// A correction about to be written: the full new values of a transaction.
+#[derive(Clone, Debug)]
+pub struct NewCorrection<'a> {
+    pub batch_id: i64,
+    pub line: usize,
+    /// The version superseded: a correction's id, or `None` for the original.
+    pub corrects_id: Option<i64>,
+    pub reason: &'a str,
+    pub value: &'a Transaction,
 }
 
 /// A settlement as stored.
@@ -77,9 +92,21 @@ fn party_columns(h: &Holder) -> (&'static str, Option<&str>) {
     }
 }
 
+/// A transaction's serial block as the two stored integers.
+fn serial_columns(t: &Transaction) -> Result<(Option<i64>, Option<i64>)> {
+    let serial = |v: u64| -> Result<i64> {
+        i64::try_from(v)
+            .map_err(|_| LedgerError::Damaged(format!("serial {v} exceeds what the ledger stores")))
+    };
+    Ok(match t.serials {
+        Some(b) => (Some(serial(b.serial_from)?), Some(serial(b.serial_to)?)),
+        None => (None, None),
+    })
+}
+
 const COLUMNS: &str = "t.seq, t.batch_id, b.file_name, t.line, t.id, t.date, t.kind, t.program, \
      t.vintage, t.quantity, t.from_party, t.from_account, t.to_party, t.to_account, t.price, \
-     t.note, t.serial_from, t.serial_to, t.settles_year";
+     t.note, t.serial_from, t.serial_to, t.settles_year, t.correction_id";
 
 fn stored_transaction(r: &Row) -> Result<StoredTransaction> {
     let date_text: String = r.get(5)?;
@@ -129,6 +156,7 @@ fn stored_transaction(r: &Row) -> Result<StoredTransaction> {
         batch_id: r.get(1)?,
         file: r.get(2)?,
         line: usize::try_from(line).map_err(|_| damaged("line", &line.to_string()))?,
+        correction_id: r.get(19)?,
         value: tx,
     })
 }
@@ -138,7 +166,7 @@ pub trait AllowanceReads: Reads {
     /// A facility's transactions, in order of recording.
     fn allowance_transactions(&self, facility_id: &str) -> Result<Vec<StoredTransaction>> {
         let mut stmt = self.conn().prepare(&format!(
-            "SELECT {COLUMNS} FROM allowance_transactions t JOIN import_batches b ON b.id = t.batch_id
+            "SELECT {COLUMNS} FROM current_allowance_transactions t JOIN import_batches b ON b.id = t.batch_id
              WHERE t.facility_id = ?1 ORDER BY t.seq"
         ))?;
         let mut rows = stmt.query([facility_id])?;
@@ -149,15 +177,15 @@ pub trait AllowanceReads: Reads {
         Ok(out)
     }
 
-    /// One transaction by id, in any facility.
+    /// One transaction's version in force by id, in any facility.
     fn allowance_transaction(&self, id: &str) -> Result<Option<(String, StoredTransaction)>> {
         let mut stmt = self.conn().prepare(&format!(
-            "SELECT {COLUMNS}, t.facility_id FROM allowance_transactions t
+            "SELECT {COLUMNS}, t.facility_id FROM current_allowance_transactions t
              JOIN import_batches b ON b.id = t.batch_id WHERE t.id = ?1"
         ))?;
         let mut rows = stmt.query([id])?;
         match rows.next()? {
-            Some(r) => Ok(Some((r.get(19)?, stored_transaction(r)?))),
+            Some(r) => Ok(Some((r.get(20)?, stored_transaction(r)?))),
             None => Ok(None),
         }
     }
@@ -256,15 +284,7 @@ impl Tx<'_> {
         );
         let (from_party, from_account) = party_columns(&t.from);
         let (to_party, to_account) = party_columns(&t.to);
-        let serial = |v: u64| -> Result<i64> {
-            i64::try_from(v).map_err(|_| {
-                LedgerError::Damaged(format!("serial {v} exceeds what the ledger stores"))
-            })
-        };
-        let (serial_from, serial_to) = match t.serials {
-            Some(b) => (Some(serial(b.serial_from)?), Some(serial(b.serial_to)?)),
-            None => (None, None),
-        };
+        let (serial_from, serial_to) = serial_columns(t)?;
         let mut stmt = self.tx.prepare_cached(
             "INSERT INTO allowance_transactions (id, seq, batch_id, line, facility_id, date, kind, program, vintage,
                  quantity, from_party, from_account, to_party, to_account, price, note, serial_from, serial_to, settles_year)
@@ -290,6 +310,47 @@ impl Tx<'_> {
             serial_from,
             serial_to,
             t.kind.settles_year(),
+        ])?;
+        Ok(())
+    }
+
+    /// Insert a correction superseding a held transaction's version in force.
+    pub fn insert_allowance_correction(&self, c: &NewCorrection) -> Result<()> {
+        let t = c.value;
+        // The book accepted it; assert what the schema also checks (STYLE.md).
+        assert!(
+            t.kind.settles_year().is_none(),
+            "a settlement's transaction is never corrected"
+        );
+        assert!(t.quantity >= 1 && t.from != t.to, "the book accepted it");
+        let (from_party, from_account) = party_columns(&t.from);
+        let (to_party, to_account) = party_columns(&t.to);
+        let (serial_from, serial_to) = serial_columns(t)?;
+        self.tx.prepare_cached(
+            "INSERT INTO allowance_corrections (transaction_id, corrects_id, batch_id, line, date, kind, program,
+                 vintage, quantity, from_party, from_account, to_party, to_account, price, note, serial_from,
+                 serial_to, reason)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18)",
+        )?
+        .execute(params![
+            t.id,
+            c.corrects_id,
+            c.batch_id,
+            c.line as i64,
+            t.date.to_string(),
+            t.kind.as_str(),
+            t.program,
+            t.vintage,
+            i64::try_from(t.quantity).expect("quantity checked against QUANTITY_MAX"),
+            from_party,
+            from_account,
+            to_party,
+            to_account,
+            t.price_usd_per_allowance.map(|p| p.to_string()),
+            t.note,
+            serial_from,
+            serial_to,
+            c.reason,
         ])?;
         Ok(())
     }

@@ -226,20 +226,42 @@ pub trait HistoryReads: Reads {
         Ok(out)
     }
 
-    /// The stored allowance transaction of an id. Transaction ids are
-    /// idempotent and never superseded (schema/0003_allowances.sql: a
-    /// mistaken transaction is undone by a later adjustment), so there is at
-    /// most one version, always in force.
+    /// Every stored version of an allowance transaction, oldest first: the
+    /// original row (`row_id` its `seq`), then its corrections from
+    /// `allowance_corrections` (`row_id` the correction's id), each
+    /// superseding the one before (schema/0006_allowance_corrections.sql).
+    /// A correction keeps the original's `facility_id`, `seq` and, having
+    /// no settlement kind, an empty `settles_year`.
     fn transaction_versions(&self, id: &str) -> Result<Vec<StoredVersion<Fields>>> {
         let list = TRANSACTION_COLUMNS
             .iter()
-            .map(|c| format!("x.{c}"))
+            .map(|c| match *c {
+                "id" | "facility_id" | "seq" => format!("t.{c}"),
+                "settles_year" => "NULL".to_string(),
+                _ => format!("x.{c}"),
+            })
             .collect::<Vec<_>>()
             .join(", ");
+        let original = TRANSACTION_COLUMNS
+            .iter()
+            .map(|c| format!("t.{c}"))
+            .collect::<Vec<_>>()
+            .join(", ");
+        // One row per version: 0 for the original, then each correction by id.
         let sql = format!(
-            "SELECT x.seq, {PROVENANCE}, NULL, NULL, 1, {list}
-             FROM allowance_transactions x JOIN import_batches b ON b.id = x.batch_id
-             WHERE x.id = ?1"
+            "SELECT t.seq, b.id, b.file_name, t.line, b.sha256, b.imported_at, b.imported_by, b.reason,
+                    NULL, NULL, NOT EXISTS (SELECT 1 FROM allowance_corrections c WHERE c.transaction_id = t.id),
+                    {original}, 0 AS version_order
+             FROM allowance_transactions t JOIN import_batches b ON b.id = t.batch_id
+             WHERE t.id = ?1
+             UNION ALL
+             SELECT x.id, {PROVENANCE}, coalesce(x.corrects_id, t.seq), x.reason,
+                    NOT EXISTS (SELECT 1 FROM allowance_corrections y WHERE y.corrects_id = x.id),
+                    {list}, x.id
+             FROM allowance_corrections x JOIN allowance_transactions t ON t.id = x.transaction_id
+             JOIN import_batches b ON b.id = x.batch_id
+             WHERE x.transaction_id = ?1
+             ORDER BY version_order"
         );
         let mut stmt = self.conn().prepare(&sql)?;
         let mut rows = stmt.query([id])?;

@@ -353,17 +353,28 @@ fn year_start_hour(year: i32) -> i64 {
 }
 
 /// Whether the rows of `ranges` hold any row dated in `year`: a sample,
-/// a fuel record or a monitor hour. Allowance transactions are left out:
-/// the year's settlement freezes them (see `audit::report_digest`).
+/// a fuel record, a monitor hour, or a correction of an allowance
+/// transaction whose new or superseded version is dated in it (a
+/// correction never settles a year: settlement rows are not corrected).
+/// New allowance transactions are left out: the year's settlement freezes
+/// them (see `audit::report_digest`).
 fn touches(conn: &Connection, ranges: &[RowRange], year: i32) -> Result<bool> {
     let y = format!("{year:04}");
-    let checks: [(&str, &str); 3] = [
+    let checks: [(&str, &str); 4] = [
         ("analyses", "substr(sampled_on, 1, 4) = ?2"),
         (
             "fuel_records",
             "(substr(start_date, 1, 4) = ?2 OR substr(end_date, 1, 4) = ?2)",
         ),
         ("hourly_blocks", "last_hour >= ?3 AND first_hour < ?4"),
+        (
+            "allowance_corrections",
+            "(substr(date, 1, 4) = ?2 OR substr(CASE WHEN corrects_id IS NULL
+                 THEN (SELECT o.date FROM allowance_transactions o
+                       WHERE o.id = allowance_corrections.transaction_id)
+                 ELSE (SELECT p.date FROM allowance_corrections p
+                       WHERE p.id = allowance_corrections.corrects_id) END, 1, 4) = ?2)",
+        ),
     ];
     for (table, test) in checks {
         let Some(r) = range(ranges, table) else {

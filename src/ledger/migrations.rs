@@ -16,6 +16,10 @@ pub const MIGRATIONS: &[(&str, &str)] = &[
         "0005_hourly_blocks",
         include_str!("../../schema/0005_hourly_blocks.sql"),
     ),
+    (
+        "0006_allowance_corrections",
+        include_str!("../../schema/0006_allowance_corrections.sql"),
+    ),
 ];
 
 /// Our own SQLite `application_id`: the ASCII bytes "FLUE". A file without

@@ -15,7 +15,9 @@ mod journal;
 pub mod migrations;
 mod rows;
 
-pub use allowances::{AllowanceReads, NewSettlement, StoredSettlement, StoredTransaction};
+pub use allowances::{
+    AllowanceReads, NewCorrection, NewSettlement, StoredSettlement, StoredTransaction,
+};
 pub use as_of::{AsOfEntry, AsOfError, AsOfPoint};
 pub use blocks::{BlockBuilder, BLOCK_ROWS};
 pub use history::{Fields, HistoryReads, Provenance, StoredVersion};

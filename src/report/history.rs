@@ -12,7 +12,6 @@ use crate::ledger::{Fields, Provenance, StoredVersion};
 use crate::records::{HourRow, Reading};
 use serde::ser::{SerializeMap, Serializer};
 use serde::Serialize;
-use std::collections::HashMap;
 use std::fmt::Write as _;
 
 /// Bumped when the JSON layout of a history changes incompatibly.
@@ -69,7 +68,9 @@ pub struct Version {
     /// 1 for the first stored, counting up in order of writing.
     pub version: usize,
     pub in_force: bool,
-    /// The row's id in its ledger table (`seq` for allowance transactions).
+    /// The row's id in its ledger table (`seq` for an allowance
+    /// transaction's original, the `allowance_corrections` id for each of
+    /// its corrections).
     pub row_id: i64,
     pub values: Named,
     pub source: VersionSource,
@@ -98,11 +99,12 @@ impl History {
         key: Vec<(&str, String)>,
         stored: Vec<(Provenance, NamedValues)>,
     ) -> History {
-        let number: HashMap<i64, usize> = stored
-            .iter()
-            .enumerate()
-            .map(|(i, (p, _))| (p.row_id, i + 1))
-            .collect();
+        // A correction supersedes an earlier version: the latest earlier one
+        // with that row id. (An allowance transaction's original is numbered
+        // by `seq` and its corrections by their own table's id, so the two
+        // may share a number; the latest earlier one is always the right one.)
+        let row_ids: Vec<i64> = stored.iter().map(|(p, _)| p.row_id).collect();
+        let number = |i: usize, id: i64| row_ids[..i].iter().rposition(|r| *r == id).map(|j| j + 1);
         let mut versions: Vec<Version> = stored
             .into_iter()
             .enumerate()
@@ -123,7 +125,7 @@ impl History {
                     reason: p.batch_reason,
                 },
                 supersedes: p.corrects_id.map(|id| Supersedes {
-                    version: number.get(&id).copied(),
+                    version: number(i, id),
                     row_id: id,
                     reason: p.reason.unwrap_or_default(),
                 }),
