@@ -349,7 +349,8 @@ fn settled_correction(
     held: &Transaction,
     new: &Transaction,
 ) -> Option<String> {
-    let frozen = "; a settled year's holdings are frozen, so this correction is refused";
+    let frozen = "; a settled year's holdings are frozen, so this correction is refused \
+                  (record an adjustment dated after the true-up day instead)";
     if let Some(m) = settled_conflict(site, settlements, new) {
         return Some(format!("{m}{frozen}"));
     }

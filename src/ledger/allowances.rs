@@ -466,6 +466,110 @@ mod tests {
         }
     }
 
+    fn batch(t: &Tx) -> Result<i64> {
+        t.insert_batch(&NewBatch {
+            kind: "allowances",
+            file_name: "a.csv",
+            sha256: &"0".repeat(64),
+            rows_added: 1,
+            rows_corrected: 0,
+            rows_present: 0,
+            at: "t",
+            by: "u",
+            reason: None,
+        })
+    }
+
+    #[test]
+    fn a_schema_5_ledger_upgrades_and_its_transactions_take_corrections_that_supersede() {
+        use crate::ledger::migrations::{APPLICATION_ID, MIGRATIONS};
+        use crate::ledger::HistoryReads;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("l.db");
+        {
+            let conn = rusqlite::Connection::open(&path).unwrap();
+            for (_, sql) in &MIGRATIONS[..5] {
+                conn.execute_batch(sql).unwrap();
+            }
+            conn.execute_batch(&format!(
+                "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = 5;"
+            ))
+            .unwrap();
+        }
+        let a = tx(
+            "a",
+            TransactionKind::Allocation,
+            Holder::Issuer,
+            Holder::account("MC1-COMPLIANCE"),
+        );
+        // Written and journaled under schema 5, before allowance_corrections existed.
+        let mut old = Ledger::connect(&path).unwrap();
+        old.write(|t| -> Result<()> {
+            let b = batch(t)?;
+            t.insert_allowance_transaction(1, b, 2, "MC1", &a)
+        })
+        .unwrap();
+        drop(old);
+        let mut ledger = Ledger::open(&path).unwrap();
+        let v = ledger.verify().unwrap();
+        assert_eq!(v.problems, vec![], "the old entries' digests still hold");
+        let mut fixed = a.clone();
+        fixed.quantity = 12;
+        fixed.serials = SerialBlock::new(101, 112);
+        let mut again = fixed.clone();
+        again.note = "n2".to_string();
+        ledger
+            .write(|t| -> Result<()> {
+                let b = batch(t)?;
+                t.insert_allowance_correction(&NewCorrection {
+                    batch_id: b,
+                    line: 5,
+                    corrects_id: None,
+                    reason: "r1",
+                    value: &fixed,
+                })?;
+                t.insert_allowance_correction(&NewCorrection {
+                    batch_id: b,
+                    line: 6,
+                    corrects_id: Some(1),
+                    reason: "r2",
+                    value: &again,
+                })
+            })
+            .unwrap();
+        assert_eq!(ledger.verify().unwrap().problems, vec![]);
+        let stored = ledger.allowance_transactions("MC1").unwrap();
+        assert_eq!(stored.len(), 1);
+        assert_eq!(stored[0].value, again);
+        assert_eq!((stored[0].seq, stored[0].line), (1, 6));
+        assert_eq!(stored[0].correction_id, Some(2));
+        let versions = ledger.transaction_versions("a").unwrap();
+        let shown: Vec<(i64, Option<i64>, bool)> = versions
+            .iter()
+            .map(|v| {
+                let p = &v.provenance;
+                (p.row_id, p.corrects_id, p.in_force)
+            })
+            .collect();
+        assert_eq!(
+            shown,
+            [(1, None, false), (1, Some(1), false), (2, Some(1), true)]
+        );
+        // The chain never forks, never crosses transactions, and never changes.
+        for sql in [
+            "INSERT INTO allowance_corrections (transaction_id, corrects_id, batch_id, line, date, kind, program,
+                 vintage, quantity, from_party, to_party, to_account, note, reason)
+             VALUES ('a', NULL, 1, 2, '2025-03-01', 'allocation', 'SO2-ANNUAL', 2025, 1, 'issuer', 'account', 'X', '', 'r')",
+            "INSERT INTO allowance_corrections (transaction_id, corrects_id, batch_id, line, date, kind, program,
+                 vintage, quantity, from_party, to_party, to_account, note, reason)
+             VALUES ('a', 1, 1, 2, '2025-03-01', 'allocation', 'SO2-ANNUAL', 2025, 1, 'issuer', 'account', 'X', '', 'r')",
+            "UPDATE allowance_corrections SET quantity = 13",
+            "DELETE FROM allowance_corrections",
+        ] {
+            assert!(ledger.conn.execute(sql, []).is_err(), "{sql}");
+        }
+    }
+
     #[test]
     fn a_second_settlement_of_the_same_year_is_refused_by_the_schema() {
         let dir = tempfile::tempdir().unwrap();

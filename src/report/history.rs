@@ -348,6 +348,21 @@ mod tests {
     }
 
     #[test]
+    fn a_correction_links_to_the_latest_earlier_version_of_its_row_id() {
+        // An allowance transaction's original is numbered by seq and its
+        // corrections by their own ids, so row 1 appears twice here.
+        check(
+            vec![
+                provenance(1, None, false),
+                provenance(1, Some(1), false),
+                provenance(2, Some(1), true),
+            ],
+            &[Some(2), Some(3), None],
+            &[None, Some(1), Some(2)],
+        );
+    }
+
+    #[test]
     fn a_single_version_supersedes_nothing() {
         check(vec![provenance(1, None, true)], &[None], &[None]);
     }
