@@ -363,19 +363,24 @@ struct Origin<'a> {
     sha256: &'a str,
 }
 
-/// Refuse an id that appears twice in one correcting file: which row would
-/// supersede which is not for the order of lines to decide.
-fn twice(rows: &[(usize, Transaction)]) -> Vec<Refusal> {
-    let mut first: HashMap<&str, usize> = HashMap::new();
+/// Refuse an id that appears twice in one file with other values, or at all
+/// in a correcting file (`any`): which row would supersede which is not for
+/// the order of lines to decide.
+fn twice(rows: &[(usize, Transaction)], any: bool) -> Vec<Refusal> {
+    let mut first: HashMap<&str, (usize, &Transaction)> = HashMap::new();
     let mut out = Vec::new();
     for (index, (line, t)) in rows.iter().enumerate() {
-        if let Some(earlier) = first.insert(&t.id, *line) {
+        let Some((earlier, held)) = first.get(t.id.as_str()).copied() else {
+            first.insert(&t.id, (*line, t));
+            continue;
+        };
+        if any || held != t {
             out.push(Refusal {
                 index,
                 id: t.id.clone(),
                 field: "id",
                 message: format!(
-                    "transaction {} appears twice in this file, on lines {earlier} and {line}; a correction names each id once",
+                    "transaction {} appears twice in this file, on lines {earlier} and {line}; name each id once",
                     t.id
                 ),
             });
@@ -396,11 +401,9 @@ fn record(
     correct: Option<&str>,
     refuse: impl Fn(Vec<Refusal>) -> AllowanceError,
 ) -> Result<Outcome, AllowanceError> {
-    if correct.is_some() {
-        let dup = twice(rows);
-        if !dup.is_empty() {
-            return Err(refuse(dup));
-        }
+    let dup = twice(rows, correct.is_some());
+    if !dup.is_empty() {
+        return Err(refuse(dup));
     }
     let held = tx.allowance_book(site)?;
     let mut book = held.clone();
