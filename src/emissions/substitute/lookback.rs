@@ -34,18 +34,24 @@ fn recent(lookback: &VecDeque<QaValue>, oldest: i64) -> impl Iterator<Item = &Qa
 /// partial sum is then no larger and at no larger a scale, so it is exact
 /// too, and the fold's result is that sum at that scale. `None` otherwise.
 pub(super) fn exact_sum(values: &[(i128, Decimal)]) -> Option<Decimal> {
+    const LIMIT: i128 = 1 << 96;
     let scale = values.iter().map(|e| e.1.scale()).max()?;
     let mut total: i128 = 0;
     for &(_, v) in values {
         if v.is_sign_negative() {
             return None;
         }
-        let m = v
-            .mantissa()
-            .checked_mul(POW10[(scale - v.scale()) as usize])?;
+        let m = match scale - v.scale() {
+            0 => v.mantissa(),
+            up => v.mantissa().checked_mul(POW10[up as usize])?,
+        };
+        // Every part is non-negative: once past the limit, the sum stays past it.
         total = total.checked_add(m)?;
+        if total >= LIMIT {
+            return None;
+        }
     }
-    (total < 1i128 << 96).then(|| Decimal::from_i128_with_scale(total, scale))
+    Some(Decimal::from_i128_with_scale(total, scale))
 }
 
 /// [`stats_of`] of keyed values (not empty), or `None` where the result
