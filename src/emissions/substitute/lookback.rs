@@ -29,24 +29,22 @@ fn recent(lookback: &VecDeque<QaValue>, oldest: i64) -> impl Iterator<Item = &Qa
 }
 
 /// Σ values as `Decimal`'s left fold from zero gives it, in any order,
-/// where no step of the fold can round: every value non-negative and the
-/// sum, written at the largest scale among them, within 96 bits. Every
-/// partial sum is then no larger and at no larger a scale, so it is exact
-/// too, and the fold's result is that sum at that scale. `None` otherwise.
+/// where no step of the fold can round or change scale: every value
+/// non-negative, all of one scale, and their sum within 96 bits. Every
+/// partial sum is then exact at that scale, and so is the fold's result.
+/// (One scale, because `Decimal` drops the scale of a zero operand in its
+/// small-number path: 0.00 + 0.9 is 0.9, so mixed scales with zeros depend
+/// on the order.) `None` otherwise.
 pub(super) fn exact_sum(values: &[(i128, Decimal)]) -> Option<Decimal> {
     const LIMIT: i128 = 1 << 96;
-    let scale = values.iter().map(|e| e.1.scale()).max()?;
+    let scale = values.first()?.1.scale();
     let mut total: i128 = 0;
     for &(_, v) in values {
-        if v.is_sign_negative() {
+        if v.is_sign_negative() || v.scale() != scale {
             return None;
         }
-        let m = match scale - v.scale() {
-            0 => v.mantissa(),
-            up => v.mantissa().checked_mul(POW10[up as usize])?,
-        };
         // Every part is non-negative: once past the limit, the sum stays past it.
-        total = total.checked_add(m)?;
+        total += v.mantissa();
         if total >= LIMIT {
             return None;
         }
