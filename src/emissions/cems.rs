@@ -370,26 +370,50 @@ pub fn heat_input_floor(heat_input: MmbtuPerHr) -> MmbtuPerHr {
 // ---------------------------------------------------------------------------
 // Hourly masses
 
+/// 10^0, 10^1, 10^2.
+const POW10_UP_TO_2: [u128; 3] = [1, 10, 100];
+
+/// `value × op_time_hr`, exactly as `Decimal`'s `*` gives it, without its
+/// general multiply where the hour is a full one written `1.00` (most hours).
+///
+/// For t = 1.00 (mantissa 100, scale 2) the product m·100 at scale s + 2
+/// loses only zeros when `Decimal` brings it within 96 bits and 28 decimals:
+/// the result is m·10^k at scale s + k for the largest k ≤ 2 with
+/// |m|·10^k < 2^96 and s + k ≤ 28, and zero is zero at scale 0. Any other
+/// operating time takes `*`. A proptest checks the two agree bit for bit.
+pub fn times_op_time(value: Decimal, op_time_hr: Decimal) -> Decimal {
+    if op_time_hr.scale() != 2 || op_time_hr.mantissa() != 100 || value.is_zero() {
+        return value * op_time_hr;
+    }
+    let m = value.mantissa();
+    let s = value.scale();
+    let k = (0..=2u32.min(Decimal::MAX_SCALE - s))
+        .rev()
+        .find(|&k| m.unsigned_abs() * POW10_UP_TO_2[k as usize] < 1u128 << 96)
+        .unwrap_or(0);
+    Decimal::from_i128_with_scale(m * POW10_UP_TO_2[k as usize] as i128, s + k)
+}
+
 /// SO2 mass of the hour: rate × operating time (the Eh · th term of 40 CFR 75 App. F Eq. F-3).
 pub fn so2_lb(rate: LbPerHr, op_time_hr: Decimal) -> Lb {
-    Lb(rate.0 * op_time_hr)
+    Lb(times_op_time(rate.0, op_time_hr))
 }
 
 /// CO2 mass of the hour: rate × operating time (the Eh · th term of 40 CFR 75 App. F Eq. F-12).
 pub fn co2_tons(rate: TonsPerHr, op_time_hr: Decimal) -> Tons {
-    Tons(rate.0 * op_time_hr)
+    Tons(times_op_time(rate.0, op_time_hr))
 }
 
 /// Heat input of the hour: rate × operating time (the HIi · ti term of 40 CFR 75 App. F §5.2 quarterly sum).
 pub fn heat_input_mmbtu(rate: MmbtuPerHr, op_time_hr: Decimal) -> Mmbtu {
-    Mmbtu(rate.0 * op_time_hr)
+    Mmbtu(times_op_time(rate.0, op_time_hr))
 }
 
 /// NOx mass of the hour.
 ///
 /// Source: 40 CFR 75 App. F Eq. F-24, `M = ER · HI · t` (form from memory).
 pub fn nox_lb_f24(rate: LbPerMmbtu, heat_input: MmbtuPerHr, op_time_hr: Decimal) -> Lb {
-    Lb(rate.0 * heat_input.0 * op_time_hr)
+    Lb(times_op_time(rate.0 * heat_input.0, op_time_hr))
 }
 
 // ---------------------------------------------------------------------------

@@ -45,6 +45,7 @@ use std::collections::VecDeque;
 use std::fmt;
 use thiserror::Error;
 
+mod lookback;
 #[cfg(test)]
 mod tests;
 
@@ -275,15 +276,54 @@ pub fn stats_of(values: &mut [Decimal]) -> Option<Stats> {
         return None;
     }
     values.sort_unstable();
-    let sum: Decimal = values.iter().copied().sum();
-    let count = u32::try_from(values.len()).expect("lookbacks hold at most 2,160 values");
+    stats_of_sorted(values)
+}
+
+/// [`stats_of`] of values already sorted: the mean sums them in this order.
+fn stats_of_sorted(sorted: &[Decimal]) -> Option<Stats> {
+    let max = *sorted.last()?;
+    let sum: Decimal = sorted.iter().copied().sum();
+    let count = u32::try_from(sorted.len()).expect("lookbacks hold at most 2,160 values");
     Some(Stats {
         count,
         mean: sum / Decimal::from(count),
-        p90: percentile_nearest_rank(values, 90),
-        p95: percentile_nearest_rank(values, 95),
-        max: *values.last().expect("not empty"),
+        p90: percentile_nearest_rank(sorted, 90),
+        p95: percentile_nearest_rank(sorted, 95),
+        max,
     })
+}
+
+/// 10^0 ..= 10^28.
+const POW10: [i128; 29] = {
+    let mut t = [1i128; 29];
+    let mut i = 1;
+    while i < t.len() {
+        t[i] = t[i - 1] * 10;
+        i += 1;
+    }
+    t
+};
+
+/// [`load_range`] in integers where that provably gives the same range,
+/// else by [`load_range`] itself: once per operating hour, so it matters.
+///
+/// load·10/max = N/D with N = a·10^(sb+1), D = b·10^sa (a, b the mantissas,
+/// sa, sb the scales). `Decimal` rounds the quotient q to 28 significant
+/// digits and at most 28 decimals: an error below max(q·10⁻²⁷, 10⁻²⁸). A q
+/// that is not an integer lies at least 1/D from every integer, and with N
+/// and D below 10²⁶ the error is smaller than that, so the rounded quotient
+/// has the same ceiling ⌈N/D⌉. Negative loads take the `Decimal` path.
+pub fn load_range_fast(load_mw: Decimal, max_load_mw: Decimal) -> u8 {
+    const LIMIT: i128 = POW10[26];
+    let scaled = |m: i128, s: u32| POW10.get(s as usize).and_then(|p| m.checked_mul(*p));
+    let n = scaled(load_mw.mantissa(), max_load_mw.scale() + 1);
+    let d = scaled(max_load_mw.mantissa(), load_mw.scale());
+    match (n, d) {
+        (Some(n), Some(d)) if !load_mw.is_sign_negative() && n < LIMIT && d > 0 && d < LIMIT => {
+            ((n + d - 1) / d).clamp(1, LOAD_RANGES as i128) as u8
+        }
+        _ => load_range(load_mw, max_load_mw),
+    }
 }
 
 /// The load range (1 to 10) of a load, by the convention in the module doc.
@@ -615,6 +655,8 @@ struct QaValue {
     value: Decimal,
     /// Load range 1 to 10; 0 where the load was unknown (never used by a range).
     range: u8,
+    /// The value's order key for the lookback statistics, found once.
+    key: Option<i128>,
 }
 
 #[derive(Clone, Copy, Debug)]
@@ -729,8 +771,7 @@ pub struct UnitStream {
     queue: VecDeque<Pending>,
     first_clock_hour: Option<i64>,
     last_clock_hour: Option<i64>,
-    scratch: Vec<(u8, Decimal)>,
-    values: Vec<Decimal>,
+    scratch: lookback::Scratch,
     operating_hours: u64,
     moisture_filled_hours: u64,
     diluent_filled_hours: u64,
@@ -756,8 +797,7 @@ impl UnitStream {
             queue: VecDeque::new(),
             first_clock_hour: None,
             last_clock_hour: None,
-            scratch: Vec::with_capacity(LOAD_BASED_LOOKBACK_QA_HOURS),
-            values: Vec::with_capacity(LOAD_BASED_LOOKBACK_QA_HOURS),
+            scratch: lookback::Scratch::default(),
             operating_hours: 0,
             moisture_filled_hours: 0,
             diluent_filled_hours: 0,
@@ -800,7 +840,7 @@ impl UnitStream {
             resolved.nox_lb_per_mmbtu.map(|c| c.value),
         ];
         let range = match (self.config.max_load_mw, input.load_mw) {
-            (Some(max), Some(load)) => Some(load_range(load, max)),
+            (Some(max), Some(load)) => Some(load_range_fast(load, max)),
             _ => None,
         };
         for p in [Parameter::Flow, Parameter::Nox] {
@@ -837,6 +877,7 @@ impl UnitStream {
                         clock_hour,
                         value,
                         range: range.unwrap_or(0),
+                        key: lookback::order_key(value),
                     });
                     slots[i] = Slot::Ready(Fill::Measured);
                 }
@@ -949,33 +990,19 @@ impl UnitStream {
         let i = p.index();
         let gap = self.params[i].gap.take().expect("an open gap");
         let oldest = gap.first_clock_hour - LOOKBACK_CLOCK_HOURS_MAX;
-        let lookback = self.params[i]
-            .lookback
-            .iter()
-            .filter(|v| v.clock_hour > oldest);
-        // Statistics of the lookback as at the gap's first hour, once per gap.
+        let lookback = &self.params[i].lookback;
+        // Statistics of the lookback as at the gap's first hour, once per gap:
+        // for flow and NOx, of the load ranges the gap's hours can use.
         let mut so2_stats = None;
         let mut ranges: [Option<Stats>; LOAD_RANGES] = [None; LOAD_RANGES];
         if p == Parameter::So2 {
-            self.values.clear();
-            self.values.extend(lookback.map(|v| v.value));
-            so2_stats = stats_of(&mut self.values);
+            so2_stats = self.scratch.whole(lookback, oldest);
         } else {
-            self.scratch.clear();
-            self.scratch
-                .extend(lookback.filter(|v| v.range > 0).map(|v| (v.range, v.value)));
-            self.scratch.sort_unstable_by_key(|&(r, _)| r);
-            for (r, stats) in ranges.iter_mut().enumerate() {
-                let range = r as u8 + 1;
-                self.values.clear();
-                self.values.extend(
-                    self.scratch
-                        .iter()
-                        .filter(|(x, _)| *x == range)
-                        .map(|&(_, v)| v),
-                );
-                *stats = stats_of(&mut self.values);
-            }
+            let hour_ranges = self.queue.iter().filter_map(|q| match q.slots[i] {
+                Slot::Waiting(w) => w.load_range,
+                Slot::Ready(_) => None,
+            });
+            ranges = self.scratch.by_range(lookback, oldest, hour_ranges);
         }
         let potential = self.config.maximum_potentials.get(p);
         let mut substituted = 0u64;

@@ -697,3 +697,63 @@ fn formula_prints_the_equation_and_the_numbers() {
         assert!(eq.arity() <= ARGS_MAX && eq.arity() > 0);
     }
 }
+
+// ---------------------------------------------------------------------------
+// The full-hour fast path of the hourly masses against the plain `Decimal` formula
+
+/// A stored reading: a fixed-point integer ×10^6 as the ledger holds it.
+fn reading(lo: i64, hi: i64) -> impl proptest::strategy::Strategy<Value = Decimal> {
+    use proptest::prelude::*;
+    (lo..hi).prop_map(|v| Decimal::new(v, crate::records::READING_SCALE))
+}
+
+/// Operating time ×10^2, mostly full hours (1.00) as in the data.
+fn op_time() -> impl proptest::strategy::Strategy<Value = Decimal> {
+    use proptest::prelude::*;
+    prop_oneof![
+        3 => Just(Decimal::new(100, crate::records::OP_TIME_SCALE)),
+        1 => (0i64..=100).prop_map(|c| Decimal::new(c, crate::records::OP_TIME_SCALE)),
+        1 => Just(Decimal::ONE),
+    ]
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(400))]
+
+    /// `times_op_time` equals `Decimal`'s `value × t` bit for bit, for any value.
+    #[test]
+    fn times_op_time_equals_decimal_multiplication(
+        m in -(1i128 << 96) + 1..(1i128 << 96),
+        s in 0u32..=28,
+        t in op_time(),
+    ) {
+        let v = Decimal::from_i128_with_scale(m, s);
+        proptest::prop_assert_eq!(times_op_time(v, t).serialize(), (v * t).serialize(), "{} × {}", v, t);
+    }
+
+    /// Hourly masses from readings as stored: each equals its plain formula bit for bit.
+    /// Heat input rate by 40 CFR 75 App. F Eq. F-18 (form from memory), times t (App. F §5.2);
+    /// SO2 by Eq. F-1 times t (Eq. F-3); NOx by Eq. F-5 and Eq. F-24 `M = ER · HI · t`;
+    /// CO2 by Eq. F-11 times t (Eq. F-12).
+    #[test]
+    fn hourly_masses_equal_the_plain_formulas(
+        flow in reading(1_000_000_000_000, 40_000_000_000_000),
+        so2 in reading(0, 1_000_000_000),
+        nox in reading(0, 400_000_000),
+        o2 in reading(0, 20_899_999),
+        co2 in reading(0, 20_000_000),
+        h2o in reading(0, 30_000_000),
+        t in op_time(),
+    ) {
+        let f = bituminous();
+        let hi = heat_input_mmbtu_per_hr_f18(flow, o2, h2o, f.f_dscf_per_mmbtu);
+        let so2_rate = so2_lb_per_hr_f1(so2, flow);
+        let nox_rate = nox_lb_per_mmbtu_f5(nox, o2, f.f_dscf_per_mmbtu);
+        let co2_rate = co2_tons_per_hr_f11(co2, flow);
+        let bits = |d: Decimal| d.serialize();
+        proptest::prop_assert_eq!(bits(heat_input_mmbtu(hi, t).0), bits(hi.0 * t));
+        proptest::prop_assert_eq!(bits(so2_lb(so2_rate, t).0), bits(so2_rate.0 * t));
+        proptest::prop_assert_eq!(bits(nox_lb_f24(nox_rate, hi, t).0), bits(nox_rate.0 * hi.0 * t));
+        proptest::prop_assert_eq!(bits(co2_tons(co2_rate, t).0), bits(co2_rate.0 * t));
+    }
+}

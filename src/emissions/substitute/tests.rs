@@ -268,6 +268,11 @@ fn load_range_boundaries() {
         (dec!(700), 10),
     ] {
         assert_eq!(load_range(load, max), range, "load {load}");
+        assert_eq!(
+            load_range_fast(load, max),
+            range,
+            "load {load}, integer path"
+        );
     }
 }
 
@@ -784,6 +789,130 @@ proptest::proptest! {
                 }
                 Fill::NotUsed => proptest::prop_assert!(false, "every hour operates"),
             }
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------
+// Fast paths against the plain `Decimal` formulas they stand in for
+
+/// A decimal of random mantissa and scale (at most 28 decimals).
+fn any_decimal(
+    max_mantissa: i128,
+    negative_weight: f64,
+) -> impl proptest::strategy::Strategy<Value = Decimal> {
+    use proptest::prelude::*;
+    (
+        0..=max_mantissa,
+        0u32..=28,
+        proptest::bool::weighted(negative_weight),
+    )
+        .prop_map(|(m, s, neg)| Decimal::from_i128_with_scale(if neg { -m } else { m }, s))
+}
+
+/// Lookback values as the stream holds them: readings of scale 6, rates of
+/// scale 28, some equal values written two ways (5.0 and 5.00), a few too
+/// large for an order key; clock hours increasing.
+fn lookback_values() -> impl proptest::strategy::Strategy<Value = VecDeque<QaValue>> {
+    use proptest::prelude::*;
+    let value = prop_oneof![
+        4 => (0i64..3_000).prop_map(|v| Decimal::new(v * 1_000, 6)),
+        3 => (1i128..=400_000).prop_map(|v| Decimal::from_i128_with_scale(v * 10i128.pow(22) + 7, 28)),
+        2 => (0i64..50).prop_map(|v| Decimal::new(v, 1)),
+        2 => (0i64..50).prop_map(|v| Decimal::new(v * 10, 2)),
+        1 => any_decimal(1 << 90, 0.2),
+    ];
+    proptest::collection::vec((value, 0u8..=10, 1i64..30), 0..400).prop_map(|v| {
+        let mut clock = 0;
+        v.into_iter()
+            .map(|(value, range, step)| {
+                clock += step;
+                QaValue {
+                    clock_hour: clock,
+                    value,
+                    range,
+                    key: lookback::order_key(value),
+                }
+            })
+            .collect()
+    })
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(200))]
+
+    /// The integer load range equals App. C §2's ⌈10·load/max⌉ (clamped to 1..=10) by `Decimal`.
+    #[test]
+    fn load_range_fast_equals_the_decimal_formula(
+        load in any_decimal(1_000_000_000_000, 0.05),
+        max_m in 1i64..100_000_000,
+        max_s in 0u32..=6,
+        k in 0i64..=11,
+        nudge in -2i64..=2,
+        at_boundary in proptest::bool::ANY,
+    ) {
+        let max = Decimal::new(max_m, max_s);
+        // Loads at a range boundary k·max/10 and a millionth either side of it.
+        let load = if at_boundary {
+            (max * Decimal::from(k) / Decimal::TEN + Decimal::new(nudge, 6)).max(Decimal::ZERO)
+        } else {
+            load
+        };
+        proptest::prop_assert_eq!(load_range_fast(load, max), load_range(load, max), "load {} max {}", load, max);
+    }
+
+    /// Σ by `exact_sum`, where it answers, is `Decimal`'s own left fold bit for bit
+    /// (the mean of 40 CFR 75.33(b)/(c) sums the lookback this way).
+    #[test]
+    fn exact_sum_equals_the_decimal_fold(
+        small in proptest::collection::vec(any_decimal(1 << 40, 0.0), 1..50),
+        zeros in proptest::collection::vec((0u32..=28, 0usize..60), 0..4),
+        large in proptest::collection::vec(any_decimal(1 << 95, 0.1), 1..5),
+        mix in proptest::bool::ANY,
+    ) {
+        let mut values: Vec<(i128, Decimal)> = small.iter().map(|&v| (0, v)).collect();
+        if mix {
+            values.extend(large.iter().map(|&v| (0, v)));
+        }
+        // Zeros of any scale, anywhere (Decimal's small-number add drops a zero's scale).
+        for (scale, at) in zeros {
+            values.insert(at.min(values.len()), (0, Decimal::new(0, scale)));
+        }
+        // One scale throughout, the case the fast path takes.
+        let one_scale: Vec<(i128, Decimal)> = small.iter().map(|&v| (0, Decimal::from_i128_with_scale(v.mantissa(), 6))).collect();
+        let fold: Decimal = one_scale.iter().map(|e| e.1).sum();
+        proptest::prop_assert_eq!(lookback::exact_sum(&one_scale).map(|s| s.serialize()), Some(fold.serialize()));
+        let fold: Decimal = values.iter().map(|e| e.1).sum();
+        if let Some(sum) = lookback::exact_sum(&values) {
+            proptest::prop_assert_eq!(sum.serialize(), fold.serialize(), "{} vs {}", sum, fold);
+        }
+    }
+
+    /// Lookback statistics by order key (nearest-rank percentiles of §72.2, mean and maximum of
+    /// 40 CFR 75.33(b) Table 1 and (c) Table 2) equal `stats_of`'s, bit for bit: the whole lookback,
+    /// and by load range every range an hour at a given range can use (its own, or the next
+    /// higher one with data, §75.31(c) and §75.33(c)(5)).
+    #[test]
+    fn lookback_stats_equal_the_sorted_decimal_reference(
+        lookback in lookback_values(),
+        oldest in 0i64..2_000,
+        hour_ranges in proptest::collection::vec(1u8..=10, 1..6),
+    ) {
+        let bits = |s: Option<Stats>| s.map(|s| [s.mean, s.p90, s.p95, s.max].map(|d| d.serialize()));
+        let mut scratch = lookback::Scratch::default();
+        let mut values = Vec::new();
+        let fast = scratch.whole(&lookback, oldest);
+        let plain = lookback::whole_plain(&lookback, oldest, &mut values);
+        proptest::prop_assert_eq!(fast.map(|s| s.count), plain.map(|s| s.count));
+        proptest::prop_assert_eq!(bits(fast), bits(plain));
+
+        let fast = scratch.by_range(&lookback, oldest, hour_ranges.iter().copied());
+        let plain = lookback::by_range_plain(&lookback, oldest, &mut Vec::new(), &mut values);
+        let used = |t: &[Option<Stats>; LOAD_RANGES], r: u8| {
+            (usize::from(r) - 1..LOAD_RANGES).find_map(|i| t[i].map(|s| (i, s.count, bits(Some(s)))))
+        };
+        for &r in &hour_ranges {
+            proptest::prop_assert_eq!(used(&fast, r), used(&plain, r), "hour at range {}", r);
         }
     }
 }
