@@ -571,15 +571,7 @@ fn month_explanation(
     }
     for h in &e.hours {
         let from = match &h.source {
-            Some(s) => format!(
-                "{}:{} (sha256 {}{})",
-                s.file,
-                s.line,
-                &s.sha256[..12.min(s.sha256.len())],
-                s.journal_seq
-                    .map(|n| format!(", journal entry {n}"))
-                    .unwrap_or_default()
-            ),
+            Some(s) => s.place(),
             None => "no stored row".to_string(),
         };
         let _ = writeln!(

@@ -42,6 +42,21 @@ pub struct RowSource {
     pub journal_seq: Option<i64>,
 }
 
+impl RowSource {
+    /// `file:line (sha256 abcdef012345, journal entry N)`, as text explanations print it.
+    pub fn place(&self) -> String {
+        format!(
+            "{}:{} (sha256 {}{})",
+            self.file,
+            self.line,
+            &self.sha256[..12.min(self.sha256.len())],
+            self.journal_seq
+                .map(|n| format!(", journal entry {n}"))
+                .unwrap_or_default()
+        )
+    }
+}
+
 /// How a substituted value was chosen.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct SubstitutionNote {
@@ -321,15 +336,7 @@ pub fn hour_text(e: &HourExplanation) -> String {
     let _ = writeln!(out, "├─ inputs");
     for i in &e.inputs {
         let from = match &i.source {
-            Some(s) => format!(
-                "{}:{} (sha256 {}{})",
-                s.file,
-                s.line,
-                &s.sha256[..12.min(s.sha256.len())],
-                s.journal_seq
-                    .map(|n| format!(", journal entry {n}"))
-                    .unwrap_or_default()
-            ),
+            Some(s) => s.place(),
             None => "supplied by the missing-data rules".into(),
         };
         let _ = writeln!(out, "│    {} = {}  from {}", i.name, shown(i.value), from);
