@@ -181,6 +181,26 @@ impl<R: BufRead> Reader<R> {
         }
     }
 
+    /// A reader for input that goes on from physical line `lines_before`
+    /// of a file whose start (and byte-order mark) another reader has
+    /// read: line numbers count on from there.
+    pub fn continuing(input: R, lines_before: usize) -> Reader<R> {
+        let mut r = Reader::new(input);
+        r.line = lines_before;
+        r.bom_checked = true;
+        r
+    }
+
+    /// Physical lines read so far.
+    pub fn lines_read(&self) -> usize {
+        self.line
+    }
+
+    /// The input, for reading on past what this reader has taken.
+    pub fn into_inner(self) -> R {
+        self.input
+    }
+
     /// Read one physical line into `self.raw` without its line ending.
     /// Returns false at the end of input.
     fn read_line(&mut self, record_bytes: usize) -> Result<bool, RowError> {

@@ -6,6 +6,7 @@
 //! src/ledger/blocks.rs) and the first errors. Every row is checked, then
 //! written in the same transaction; any error rolls everything back.
 
+use super::pieces::{Piece, Splitter};
 use super::{ImportError, Outcome, Stamp};
 use crate::csvread::{shown, Columns, FileErrors, Reader, Record, RowError, ERRORS_SHOWN_MAX};
 use crate::decimal::{parse_fixed, FixedError};
@@ -306,12 +307,13 @@ fn mixed_basis(row: &HourRow, seen: u32) -> Option<String> {
     })
 }
 
-/// Rows handed from the parsing thread to the writing one at a time.
-const CHUNK_ROWS: usize = 4096;
-/// Chunks in flight between the threads: bounds memory whatever the file size.
-const CHUNKS_IN_FLIGHT: usize = 4;
+/// Bytes of the file per piece handed to a parsing thread.
+const PIECE_BYTES: usize = 256 * 1024;
+/// Pieces and parsed chunks in flight per parsing thread: bounds memory
+/// whatever the file size.
+const IN_FLIGHT: usize = 2;
 
-/// One parsed row: its line, the file's index of its unit, its year.
+/// One parsed row: its line, the piece's index of its unit, its year.
 struct Parsed {
     line: usize,
     unit: usize,
@@ -319,27 +321,28 @@ struct Parsed {
     row: HourRow,
 }
 
-/// What the parsing thread sends: rows, units first seen, and row errors.
+/// A piece of the file, parsed: its rows, the units they name, and row errors.
 #[derive(Default)]
 struct Chunk {
-    /// The file's bytes read since the last chunk, for its digest.
+    /// The file's bytes read since the last piece, for its digest.
     raw: Vec<u8>,
     rows: Vec<Parsed>,
-    new_units: Vec<String>,
+    /// The unit names of this chunk's rows, by [`Parsed::unit`].
+    units: Vec<String>,
     errors: Vec<RowError>,
+    /// The reader stopped here (a broken quote, an oversized record, a
+    /// read error): no safe place to resume, so later chunks are not used.
+    stopped: bool,
 }
 
-/// Parse every record after the header, sending chunks as they fill.
-/// Runs on its own thread, so parsing overlaps the inserts (2 cores).
-fn parse_records<R: BufRead>(
-    mut reader: Reader<R>,
-    unhashed: &Unhashed,
-    layout: &Layout,
-    out: std::sync::mpsc::SyncSender<Chunk>,
-) {
+/// Parse the records of one piece.
+fn parse_piece(layout: &Layout, piece: Piece, raw: Vec<u8>) -> Chunk {
+    let mut chunk = Chunk {
+        raw,
+        ..Chunk::default()
+    };
+    let mut reader = Reader::continuing(&piece.bytes[..], piece.lines_before);
     let mut record = Record::default();
-    let mut names: HashMap<String, usize> = HashMap::new();
-    let mut chunk = Chunk::default();
     let mut scratch = Errors {
         kept: Vec::new(),
         omitted: 0,
@@ -349,9 +352,9 @@ fn parse_records<R: BufRead>(
             Ok(false) => break,
             Ok(true) => {}
             Err(e) => {
-                // A broken quote or an oversized record leaves no safe place to resume.
                 chunk.errors.push(e);
-                break;
+                chunk.stopped = true;
+                return chunk;
             }
         }
         if let Some(e) = RowError::field_count(&record, layout.names.len()) {
@@ -363,13 +366,12 @@ fn parse_records<R: BufRead>(
         let Some((unit, year, row)) = parsed else {
             continue;
         };
-        let index = match names.get(unit) {
-            Some(&i) => i,
+        // Rows come grouped by unit: look back before searching.
+        let index = match chunk.units.iter().rposition(|u| u == unit) {
+            Some(i) => i,
             None => {
-                let i = names.len();
-                names.insert(unit.to_string(), i);
-                chunk.new_units.push(unit.to_string());
-                i
+                chunk.units.push(unit.to_string());
+                chunk.units.len() - 1
             }
         };
         chunk.rows.push(Parsed {
@@ -378,15 +380,37 @@ fn parse_records<R: BufRead>(
             year,
             row,
         });
-        if chunk.rows.len() == CHUNK_ROWS {
-            chunk.raw = take(unhashed);
-            if out.send(std::mem::take(&mut chunk)).is_err() {
-                return; // The writer stopped: nothing more is wanted.
-            }
+    }
+    if let Some(e) = piece.error {
+        chunk.errors.push(e);
+        chunk.stopped = true;
+    }
+    chunk
+}
+
+/// Cut the file into pieces and deal them out to the parsing threads in
+/// turn; runs on its own thread.
+fn deal_pieces<R: BufRead>(
+    mut splitter: Splitter<R>,
+    unhashed: &Unhashed,
+    to_parsers: Vec<std::sync::mpsc::SyncSender<(Piece, Vec<u8>)>>,
+) {
+    for k in 0.. {
+        let Some(piece) = splitter.next_piece() else {
+            return;
+        };
+        if to_parsers[k % to_parsers.len()]
+            .send((piece, take(unhashed)))
+            .is_err()
+        {
+            return; // The writer stopped: nothing more is wanted.
         }
     }
-    chunk.raw = take(unhashed);
-    let _ = out.send(chunk);
+}
+
+/// Parsing threads beside the one that cuts the file and the one that writes.
+fn parser_count() -> usize {
+    std::thread::available_parallelism().map_or(2, |n| n.get().clamp(1, 4))
 }
 
 /// Import an hourly file, naming it `name` in messages and in the ledger.
@@ -442,19 +466,47 @@ pub fn import_named(
         let mut units: Vec<Result<UnitState, String>> = Vec::new();
         let mut unit_names: Vec<String> = Vec::new();
         let mut done = Outcome::default();
-        let (send, receive) = std::sync::mpsc::sync_channel::<Chunk>(CHUNKS_IN_FLIGHT);
+        let lines_before = reader.lines_read();
+        let splitter = Splitter::new(reader.into_inner(), lines_before, PIECE_BYTES);
+        // The file's units in order of first appearance, by name.
+        let mut file_units: HashMap<String, usize> = HashMap::new();
         let written: Result<(), ImportError> = std::thread::scope(|scope| {
-            // Owned here, so an early return drops it and the parser stops.
-            let receive = receive;
             let layout = &layout;
             let unhashed = &unhashed;
-            scope.spawn(move || parse_records(reader, unhashed, layout, send));
-            for chunk in receive.iter() {
+            let mut to_parsers = Vec::new();
+            // Owned here, so an early return drops them and every thread stops.
+            let mut from_parsers = Vec::new();
+            for _ in 0..parser_count() {
+                let (send_piece, pieces) = std::sync::mpsc::sync_channel::<(Piece, Vec<u8>)>(IN_FLIGHT);
+                let (send_chunk, chunks) = std::sync::mpsc::sync_channel::<Chunk>(IN_FLIGHT);
+                scope.spawn(move || {
+                    for (piece, raw) in pieces.iter() {
+                        if send_chunk.send(parse_piece(layout, piece, raw)).is_err() {
+                            return;
+                        }
+                    }
+                });
+                to_parsers.push(send_piece);
+                from_parsers.push(chunks);
+            }
+            scope.spawn(move || deal_pieces(splitter, unhashed, to_parsers));
+            // Chunks come back in the order the pieces were dealt.
+            for k in 0.. {
+                let Ok(chunk) = from_parsers[k % from_parsers.len()].recv() else {
+                    break;
+                };
                 hasher.update(&chunk.raw);
                 for e in chunk.errors {
                     errors.push(e);
                 }
-                for unit in chunk.new_units {
+                let mut here = Vec::with_capacity(chunk.units.len());
+                for unit in chunk.units {
+                    if let Some(&i) = file_units.get(&unit) {
+                        here.push(i);
+                        continue;
+                    }
+                    here.push(units.len());
+                    file_units.insert(unit.clone(), units.len());
                     let state = match cems_units.get(unit.as_str()) {
                         None => Err(format!("unknown unit {} (not in any site file)", shown(&unit))),
                         Some(false) => Err(format!(
@@ -479,7 +531,8 @@ pub fn import_named(
                     units.push(state);
                     unit_names.push(unit);
                 }
-                for Parsed { line, unit: index, year, row } in chunk.rows {
+                for Parsed { line, unit, year, row } in chunk.rows {
+                    let index = here[unit];
                     let unit = unit_names[index].as_str();
                     let state = match &mut units[index] {
                         Ok(state) => state,
@@ -562,6 +615,9 @@ pub fn import_named(
                     } else {
                         done.added += 1;
                     }
+                }
+                if chunk.stopped {
+                    break;
                 }
             }
             Ok(())

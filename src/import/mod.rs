@@ -11,6 +11,7 @@ pub mod allowances;
 pub mod analyses;
 pub mod fuel;
 pub mod hourly;
+mod pieces;
 pub mod site;
 
 use crate::csvread::{Columns, FileErrors, Reader, Record, RowError};
