@@ -215,7 +215,7 @@ pub fn hours_out(
         while let Some(out) = stream.next_ready() {
             done |= out.clock_hour >= to - 1;
             if (from..to).contains(&out.clock_hour) {
-                found.push(out);
+                found.push(*out);
             }
         }
     })
@@ -229,7 +229,7 @@ pub fn hours_out(
             .map_err(|e| format!("unit {}: {e}", unit.id))?;
         while let Some(out) = stream.next_ready() {
             if (from..to).contains(&out.clock_hour) {
-                found.push(out);
+                found.push(*out);
             }
         }
     }

@@ -14,6 +14,7 @@ pub mod crashpoint;
 pub mod csvread;
 pub mod decimal;
 pub mod emissions;
+pub mod exact_sum;
 pub mod import;
 pub mod ledger;
 pub mod records;

@@ -11,7 +11,9 @@ use std::iter::Sum;
 use std::ops::{Add, AddAssign};
 
 /// Pounds per short ton (common practice; 40 CFR 75 App. F Eq. F-3 divides by 2000).
-pub const LB_PER_TON: Decimal = Decimal::from_parts(2000, 0, 0, false, 0);
+pub const LB_PER_TON: Decimal = Decimal::from_parts(LB_PER_TON_U32, 0, 0, false, 0);
+/// [`LB_PER_TON`] as an integer, for exact sums (src/exact_sum.rs).
+pub const LB_PER_TON_U32: u32 = 2000;
 /// Btu per MMBtu (40 CFR 75 App. D Eq. D-6 and D-8 divide by 10^6).
 pub const BTU_PER_MMBTU: Decimal = Decimal::from_parts(1_000_000, 0, 0, false, 0);
 

@@ -16,9 +16,10 @@ use crate::emissions::periods::{Amounts, Year};
 use crate::emissions::substitute::{
     Fill, HourOut, MaximumPotentials, Parameter, StreamConfig, SubstituteError, UnitStream,
 };
+use crate::exact_sum::ExactSum;
 use crate::records::{hour_index, hour_label, HourRow, Reading};
 use crate::site::{Rounding, Unit};
-use crate::units::LB_PER_TON;
+use crate::units::LB_PER_TON_U32;
 use chrono::NaiveDate;
 use rust_decimal::Decimal;
 use rust_decimal_macros::dec;
@@ -203,15 +204,40 @@ pub struct DayAmounts {
 pub struct HourlyYear<'a> {
     unit: &'a Unit,
     stream: UnitStream,
+    sums: YearSums,
+    last_pushed: Option<i64>,
+    /// Availability as at the year's last hour, taken before any later hour is pushed.
+    availability_at_year_end: Option<[Option<Decimal>; 3]>,
+}
+
+/// The year's results being summed, apart from the stream that feeds them.
+struct YearSums {
     year_start: i64,
     year_end: i64,
     month_starts: [i64; 13],
     /// Per day of the year, where each quantity comes from.
     sources: Vec<[Source; 4]>,
     result: HourlyResult,
-    last_pushed: Option<i64>,
-    /// Availability as at the year's last hour, taken before any later hour is pushed.
-    availability_at_year_end: Option<[Option<Decimal>; 3]>,
+    /// Exact sums of the hours so far (src/exact_sum.rs), rounded once
+    /// when the month, the day or the year is done.
+    operating_hours: ExactSum,
+    month: Option<MonthSums>,
+    day: Option<DaySums>,
+}
+
+/// The exact sums of the month being added, by quantity. CO2 from the
+/// monitors is summed in tons and turned into lb once, at the month's end.
+struct MonthSums {
+    month: u32,
+    lb: [Option<ExactSum>; 4],
+    co2_tons: Option<ExactSum>,
+}
+
+/// The exact sums of the day being added.
+struct DaySums {
+    day: usize,
+    heat_input_mmbtu: ExactSum,
+    so2_lb: Option<ExactSum>,
 }
 
 fn stream_error(unit: &Unit, e: SubstituteError) -> String {
@@ -271,17 +297,22 @@ impl<'a> HourlyYear<'a> {
         Ok(HourlyYear {
             unit,
             stream,
-            year_start: month_starts[0],
-            year_end: month_starts[12],
-            month_starts,
-            sources,
-            result: HourlyResult {
-                year: months,
-                operating_hours: Decimal::ZERO,
-                substituted_hours: [0; 3],
-                availability_pct: [None; 3],
-                hours: 0,
-                daily: vec![DayAmounts::default(); days as usize],
+            sums: YearSums {
+                year_start: month_starts[0],
+                year_end: month_starts[12],
+                month_starts,
+                sources,
+                result: HourlyResult {
+                    year: months,
+                    operating_hours: Decimal::ZERO,
+                    substituted_hours: [0; 3],
+                    availability_pct: [None; 3],
+                    hours: 0,
+                    daily: vec![DayAmounts::default(); days as usize],
+                },
+                operating_hours: ExactSum::default(),
+                month: None,
+                day: None,
             },
             last_pushed: None,
             availability_at_year_end: None,
@@ -291,7 +322,7 @@ impl<'a> HourlyYear<'a> {
     /// The first hour after the year: the caller streams every hour before
     /// it, then later hours while [`waits_past_year_end`](Self::waits_past_year_end).
     pub fn end_hour(&self) -> i64 {
-        self.year_end
+        self.sums.year_end
     }
 
     /// Whether an hour of the year waits for a missing-data period that is
@@ -299,12 +330,12 @@ impl<'a> HourlyYear<'a> {
     pub fn waits_past_year_end(&self) -> bool {
         self.stream
             .first_waiting_hour()
-            .is_some_and(|h| h < self.year_end)
+            .is_some_and(|h| h < self.sums.year_end)
     }
 
     /// Feed the next stored hour, in hour order.
     pub fn push(&mut self, row: &HourRow) -> Result<(), String> {
-        if row.hour >= self.year_end && self.availability_at_year_end.is_none() {
+        if row.hour >= self.sums.year_end && self.availability_at_year_end.is_none() {
             self.availability_at_year_end = Some(self.availability());
         }
         self.last_pushed = Some(row.hour);
@@ -312,7 +343,7 @@ impl<'a> HourlyYear<'a> {
             .push(row.hour, hour_input(row))
             .map_err(|e| format!("{} at {}", stream_error(self.unit, e), hour_label(row.hour)))?;
         while let Some(out) = self.stream.next_ready() {
-            self.add(&out);
+            self.sums.add(out);
         }
         Ok(())
     }
@@ -324,13 +355,32 @@ impl<'a> HourlyYear<'a> {
             .map(|p| p.and_then(|p| p.mda_pct))
     }
 
+    /// Close the stream and return the year's sums.
+    pub fn finish(mut self) -> Result<HourlyResult, String> {
+        self.stream
+            .finish()
+            .map_err(|e| stream_error(self.unit, e))?;
+        while let Some(out) = self.stream.next_ready() {
+            self.sums.add(out);
+        }
+        self.sums.close_month();
+        self.sums.close_day();
+        self.sums.result.operating_hours = self.sums.operating_hours.value();
+        self.sums.result.availability_pct = self
+            .availability_at_year_end
+            .unwrap_or_else(|| self.availability());
+        Ok(self.sums.result)
+    }
+}
+
+impl YearSums {
     fn add(&mut self, out: &HourOut) {
         if out.clock_hour < self.year_start || out.clock_hour >= self.year_end {
             return;
         }
         let r = &mut self.result;
         r.hours += 1;
-        r.operating_hours += out.input.op_time_hr;
+        self.operating_hours.add(out.input.op_time_hr);
         let month = self.month_starts.partition_point(|&s| s <= out.clock_hour) as u32;
         let day = ((out.clock_hour - self.year_start) / 24) as usize;
         let mut substituted = false;
@@ -344,7 +394,23 @@ impl<'a> HourlyYear<'a> {
             r.daily[day].substituted_hours += 1;
         }
         let heat_input = out.result.heat_input().map(|h| h.0).unwrap_or_default();
-        let mut amounts = Amounts::default();
+        if self.month.as_ref().is_some_and(|m| m.month != month) {
+            self.close_month();
+        }
+        if self.day.as_ref().is_some_and(|d| d.day != day) {
+            self.close_day();
+        }
+        let sums = self.month.get_or_insert(MonthSums {
+            month,
+            lb: [None; 4],
+            co2_tons: None,
+        });
+        let today = self.day.get_or_insert_with(|| DaySums {
+            day,
+            heat_input_mmbtu: ExactSum::default(),
+            so2_lb: None,
+        });
+        today.heat_input_mmbtu.add(heat_input);
         for q in Quantity::ALL {
             let value = match self.sources[day][q.index()] {
                 Source::None => continue,
@@ -353,35 +419,56 @@ impl<'a> HourlyYear<'a> {
                     Quantity::HeatInput => heat_input,
                     Quantity::So2 => out.result.so2().map(|m| m.0).unwrap_or_default(),
                     Quantity::Nox => out.result.nox().map(|m| m.0).unwrap_or_default(),
-                    Quantity::Co2 => out
-                        .result
-                        .co2()
-                        .map(|t| t.0 * LB_PER_TON)
-                        .unwrap_or_default(),
+                    Quantity::Co2 => {
+                        let tons = out.result.co2().map(|t| t.0).unwrap_or_default();
+                        sums.co2_tons
+                            .get_or_insert_with(ExactSum::default)
+                            .add(tons);
+                        continue;
+                    }
                 },
             };
-            amounts.set(q, value);
+            sums.lb[q.index()]
+                .get_or_insert_with(ExactSum::default)
+                .add(value);
+            if q == Quantity::So2 {
+                today
+                    .so2_lb
+                    .get_or_insert_with(ExactSum::default)
+                    .add(value);
+            }
         }
-        let today = &mut r.daily[day];
-        today.heat_input_mmbtu += heat_input;
-        if let Some(so2_lb) = amounts.get(Quantity::So2) {
-            *today.so2_lb.get_or_insert(Decimal::ZERO) += so2_lb;
-        }
-        r.year.add_month(month, amounts);
     }
 
-    /// Close the stream and return the year's sums.
-    pub fn finish(mut self) -> Result<HourlyResult, String> {
-        self.stream
-            .finish()
-            .map_err(|e| stream_error(self.unit, e))?;
-        while let Some(out) = self.stream.next_ready() {
-            self.add(&out);
+    /// Round the month's sums and add them to the year.
+    fn close_month(&mut self) {
+        if let Some(mut sums) = self.month.take() {
+            if let Some(tons) = sums.co2_tons {
+                let lb = tons.times(LB_PER_TON_U32);
+                match &mut sums.lb[Quantity::Co2.index()] {
+                    Some(sum) => sum.merge(lb),
+                    none => *none = Some(lb),
+                }
+            }
+            let mut amounts = Amounts::default();
+            for q in Quantity::ALL {
+                if let Some(sum) = sums.lb[q.index()] {
+                    amounts.set(q, sum.value());
+                }
+            }
+            self.result.year.add_month(sums.month, amounts);
         }
-        self.result.availability_pct = self
-            .availability_at_year_end
-            .unwrap_or_else(|| self.availability());
-        Ok(self.result)
+    }
+
+    /// Round the day's sums and add them to its entry.
+    fn close_day(&mut self) {
+        if let Some(d) = self.day.take() {
+            let entry = &mut self.result.daily[d.day];
+            entry.heat_input_mmbtu += d.heat_input_mmbtu.value();
+            if let Some(so2) = d.so2_lb {
+                *entry.so2_lb.get_or_insert(Decimal::ZERO) += so2.value();
+            }
+        }
     }
 }
 

@@ -291,6 +291,10 @@ pub fn co2_pct_wet_f14b(o2_pct_wet: Decimal, h2o_pct: Decimal, f: FFactors) -> D
 
 // ---------------------------------------------------------------------------
 // Heat input (App. F §5)
+//
+// Each form is written as one product over one product of its inputs and
+// constants, so that `Decimal` rounds once, in the division, instead of after
+// each factor; the value is the same equation's to 28 significant digits.
 
 /// Heat input rate from wet CO2 and wet flow.
 ///
@@ -301,7 +305,7 @@ pub fn heat_input_mmbtu_per_hr_f15(
     co2_pct_wet: Decimal,
     fc_scf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
-    MmbtuPerHr(flow_scfh_wet / fc_scf_per_mmbtu * co2_pct_wet / HUNDRED)
+    MmbtuPerHr(flow_scfh_wet * co2_pct_wet / (fc_scf_per_mmbtu * HUNDRED))
 }
 
 /// Heat input rate from dry CO2, wet flow and moisture.
@@ -315,7 +319,7 @@ pub fn heat_input_mmbtu_per_hr_f16(
     fc_scf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
     MmbtuPerHr(
-        flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * fc_scf_per_mmbtu) * co2_pct_dry / HUNDRED,
+        flow_scfh_wet * (HUNDRED - h2o_pct) * co2_pct_dry / (HUNDRED * fc_scf_per_mmbtu * HUNDRED),
     )
 }
 
@@ -330,10 +334,10 @@ pub fn heat_input_mmbtu_per_hr_f17(
     h2o_pct: Decimal,
     f_dscf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
+    // (20.9/100)·(100 − %H2O) − %O2w = [20.9·(100 − %H2O) − 100·%O2w]/100.
     MmbtuPerHr(
-        flow_scfh_wet / f_dscf_per_mmbtu
-            * (O2_AMBIENT_PCT / HUNDRED * (HUNDRED - h2o_pct) - o2_pct_wet)
-            / O2_AMBIENT_PCT,
+        flow_scfh_wet * (O2_AMBIENT_PCT * (HUNDRED - h2o_pct) - HUNDRED * o2_pct_wet)
+            / (HUNDRED * f_dscf_per_mmbtu * O2_AMBIENT_PCT),
     )
 }
 
@@ -348,9 +352,8 @@ pub fn heat_input_mmbtu_per_hr_f18(
     f_dscf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
     MmbtuPerHr(
-        flow_scfh_wet * (HUNDRED - h2o_pct) / (HUNDRED * f_dscf_per_mmbtu)
-            * (O2_AMBIENT_PCT - o2_pct_dry)
-            / O2_AMBIENT_PCT,
+        flow_scfh_wet * (HUNDRED - h2o_pct) * (O2_AMBIENT_PCT - o2_pct_dry)
+            / (HUNDRED * f_dscf_per_mmbtu * O2_AMBIENT_PCT),
     )
 }
 
@@ -1147,9 +1150,22 @@ pub fn substituted_nox(value: Decimal, rounding: Rounding) -> Calc {
 /// they are multiplied into masses.
 pub fn compute_hour(input: &HourInput, resolved: &Resolved, unit: &CemsUnit) -> HourResult {
     let mut out = HourResult::default();
+    compute_hour_into(input, resolved, unit, &mut out);
+    out
+}
+
+/// [`compute_hour`] into a result the caller holds, so the stream's hot
+/// loop does not copy the result about.
+pub fn compute_hour_into(
+    input: &HourInput,
+    resolved: &Resolved,
+    unit: &CemsUnit,
+    out: &mut HourResult,
+) {
+    *out = HourResult::default();
     let t = input.op_time_hr;
     if t <= Decimal::ZERO {
-        return out;
+        return;
     }
     let c = unit.computes;
     let flow = resolved.flow_scfh_wet;
@@ -1169,7 +1185,7 @@ pub fn compute_hour(input: &HourInput, resolved: &Resolved, unit: &CemsUnit) -> 
 
     if c.heat_input || c.nox {
         if let Some(q) = flow {
-            let rate = heat_input_rate(input, unit, q, co2, &mut out);
+            let rate = heat_input_rate(input, unit, q, co2, out);
             out.heat_input_mmbtu = Some(Calc::new(
                 Equation::HeatInputAmount,
                 &[rate.value, t],
@@ -1250,7 +1266,6 @@ pub fn compute_hour(input: &HourInput, resolved: &Resolved, unit: &CemsUnit) -> 
             out.co2_tons_per_hr = Some(rate);
         }
     }
-    out
 }
 
 /// Heat input rate by the unit's diluent and bases (Eq. F-15 to F-18).

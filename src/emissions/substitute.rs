@@ -554,9 +554,10 @@ pub struct Substitution {
 }
 
 /// How an hour's value of a parameter was obtained.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub enum Fill {
     /// Not monitored on this unit, or the unit was not operating.
+    #[default]
     NotUsed,
     /// A quality-assured reading.
     Measured,
@@ -614,7 +615,7 @@ pub enum SubstituteError {
 }
 
 /// One hour out of the stream.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct HourOut {
     pub clock_hour: i64,
     pub input: HourInput,
@@ -769,6 +770,9 @@ pub struct UnitStream {
     params: [ParamState; 3],
     window: MdaWindow,
     queue: VecDeque<Pending>,
+    /// The hour [`next_ready`](UnitStream::next_ready) gave last, kept here
+    /// so that it is not copied out.
+    ready: HourOut,
     first_clock_hour: Option<i64>,
     last_clock_hour: Option<i64>,
     scratch: lookback::Scratch,
@@ -795,6 +799,7 @@ impl UnitStream {
                 qa: [0; 3],
             },
             queue: VecDeque::new(),
+            ready: HourOut::default(),
             first_clock_hour: None,
             last_clock_hour: None,
             scratch: lookback::Scratch::default(),
@@ -921,7 +926,7 @@ impl UnitStream {
     }
 
     /// The next hour whose values are all known, in time order.
-    pub fn next_ready(&mut self) -> Option<HourOut> {
+    pub fn next_ready(&mut self) -> Option<&HourOut> {
         let front = self.queue.front()?;
         if front.slots.iter().any(|s| matches!(s, Slot::Waiting(_))) {
             return None;
@@ -945,15 +950,14 @@ impl UnitStream {
                 }
             }
         }
-        let result = cems::compute_hour(&p.input, &resolved, &self.config.unit);
-        self.moisture_filled_hours += u64::from(result.moisture_filled);
-        self.diluent_filled_hours += u64::from(result.diluent_filled);
-        Some(HourOut {
-            clock_hour: p.clock_hour,
-            input: p.input,
-            result,
-            fills,
-        })
+        let out = &mut self.ready;
+        cems::compute_hour_into(&p.input, &resolved, &self.config.unit, &mut out.result);
+        out.clock_hour = p.clock_hour;
+        out.input = p.input;
+        out.fills = fills;
+        self.moisture_filled_hours += u64::from(out.result.moisture_filled);
+        self.diluent_filled_hours += u64::from(out.result.diluent_filled);
+        Some(&self.ready)
     }
 
     /// The first hour still waiting for a missing-data period to close, if any.

@@ -324,8 +324,6 @@ struct Parsed {
 /// A piece of the file, parsed: its rows, the units they name, and row errors.
 #[derive(Default)]
 struct Chunk {
-    /// The file's bytes read since the last piece, for its digest.
-    raw: Vec<u8>,
     rows: Vec<Parsed>,
     /// The unit names of this chunk's rows, by [`Parsed::unit`].
     units: Vec<String>,
@@ -336,11 +334,8 @@ struct Chunk {
 }
 
 /// Parse the records of one piece.
-fn parse_piece(layout: &Layout, piece: Piece, raw: Vec<u8>) -> Chunk {
-    let mut chunk = Chunk {
-        raw,
-        ..Chunk::default()
-    };
+fn parse_piece(layout: &Layout, piece: Piece) -> Chunk {
+    let mut chunk = Chunk::default();
     let mut reader = Reader::continuing(&piece.bytes[..], piece.lines_before);
     let mut record = Record::default();
     let mut scratch = Errors {
@@ -390,22 +385,23 @@ fn parse_piece(layout: &Layout, piece: Piece, raw: Vec<u8>) -> Chunk {
 
 /// Cut the file into pieces and deal them out to the parsing threads in
 /// turn; runs on its own thread.
+/// Hashes every byte it reads, the header's too, so the writer need not.
 fn deal_pieces<R: BufRead>(
     mut splitter: Splitter<R>,
     unhashed: &Unhashed,
-    to_parsers: Vec<std::sync::mpsc::SyncSender<(Piece, Vec<u8>)>>,
-) {
+    mut hasher: Sha256,
+    to_parsers: Vec<std::sync::mpsc::SyncSender<Piece>>,
+) -> Sha256 {
     for k in 0.. {
         let Some(piece) = splitter.next_piece() else {
-            return;
+            break;
         };
-        if to_parsers[k % to_parsers.len()]
-            .send((piece, take(unhashed)))
-            .is_err()
-        {
-            return; // The writer stopped: nothing more is wanted.
+        hasher.update(take(unhashed));
+        if to_parsers[k % to_parsers.len()].send(piece).is_err() {
+            break; // The writer stopped: nothing more is wanted.
         }
     }
+    hasher
 }
 
 /// Parsing threads beside the one that cuts the file and the one that writes.
@@ -430,7 +426,6 @@ pub fn import_named(
     let file = std::fs::File::open(path)
         .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
     let unhashed = Unhashed::default();
-    let mut hasher = Sha256::new();
     let mut input = BufReader::with_capacity(
         1 << 20,
         Hashing {
@@ -470,18 +465,18 @@ pub fn import_named(
         let splitter = Splitter::new(reader.into_inner(), lines_before, PIECE_BYTES);
         // The file's units in order of first appearance, by name.
         let mut file_units: HashMap<String, usize> = HashMap::new();
-        let written: Result<(), ImportError> = std::thread::scope(|scope| {
+        let written: Result<Sha256, ImportError> = std::thread::scope(|scope| {
             let layout = &layout;
             let unhashed = &unhashed;
             let mut to_parsers = Vec::new();
             // Owned here, so an early return drops them and every thread stops.
             let mut from_parsers = Vec::new();
             for _ in 0..parser_count() {
-                let (send_piece, pieces) = std::sync::mpsc::sync_channel::<(Piece, Vec<u8>)>(IN_FLIGHT);
+                let (send_piece, pieces) = std::sync::mpsc::sync_channel::<Piece>(IN_FLIGHT);
                 let (send_chunk, chunks) = std::sync::mpsc::sync_channel::<Chunk>(IN_FLIGHT);
                 scope.spawn(move || {
-                    for (piece, raw) in pieces.iter() {
-                        if send_chunk.send(parse_piece(layout, piece, raw)).is_err() {
+                    for piece in pieces.iter() {
+                        if send_chunk.send(parse_piece(layout, piece)).is_err() {
                             return;
                         }
                     }
@@ -489,13 +484,12 @@ pub fn import_named(
                 to_parsers.push(send_piece);
                 from_parsers.push(chunks);
             }
-            scope.spawn(move || deal_pieces(splitter, unhashed, to_parsers));
+            let dealer = scope.spawn(move || deal_pieces(splitter, unhashed, Sha256::new(), to_parsers));
             // Chunks come back in the order the pieces were dealt.
             for k in 0.. {
                 let Ok(chunk) = from_parsers[k % from_parsers.len()].recv() else {
                     break;
                 };
-                hasher.update(&chunk.raw);
                 for e in chunk.errors {
                     errors.push(e);
                 }
@@ -620,9 +614,11 @@ pub fn import_named(
                     break;
                 }
             }
-            Ok(())
+            // Stop the parsers, so the dealer stops too, then take its digest.
+            drop(from_parsers);
+            Ok(dealer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)))
         });
-        written?;
+        let mut hasher = written?;
         if !errors.is_empty() {
             errors.kept.sort_by_key(|e| e.line);
             let mut fe = FileErrors::new(&name, errors.kept);

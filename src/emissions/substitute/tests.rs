@@ -70,10 +70,10 @@ fn run_so2(readings: &[Option<Decimal>]) -> (Vec<HourOut>, StreamSummary) {
     let mut out = Vec::new();
     for (i, r) in readings.iter().enumerate() {
         s.push(i as i64, so2_hour(*r)).unwrap();
-        out.extend(std::iter::from_fn(|| s.next_ready()));
+        out.extend(std::iter::from_fn(|| s.next_ready().copied()));
     }
     s.finish().unwrap();
-    out.extend(std::iter::from_fn(|| s.next_ready()));
+    out.extend(std::iter::from_fn(|| s.next_ready().copied()));
     (out, s.summary())
 }
 
@@ -529,7 +529,7 @@ fn zero_operating_time_neither_breaks_nor_lengthens_a_gap() {
         "gap hours wait for the gap to close"
     );
     s.push(4, so2_hour(Some(dec!(200)))).unwrap();
-    let out: Vec<HourOut> = std::iter::from_fn(|| s.next_ready()).collect();
+    let out: Vec<HourOut> = std::iter::from_fn(|| s.next_ready().copied()).collect();
     assert_eq!(
         out.iter().map(|h| h.clock_hour).collect::<Vec<_>>(),
         [1, 2, 3, 4]
@@ -574,10 +574,10 @@ fn run(config: StreamConfig, hours: &[HourInput]) -> Result<Vec<HourOut>, Substi
     let mut out = Vec::new();
     for (i, h) in hours.iter().enumerate() {
         s.push(i as i64, *h)?;
-        out.extend(std::iter::from_fn(|| s.next_ready()));
+        out.extend(std::iter::from_fn(|| s.next_ready().copied()));
     }
     s.finish()?;
-    out.extend(std::iter::from_fn(|| s.next_ready()));
+    out.extend(std::iter::from_fn(|| s.next_ready().copied()));
     Ok(out)
 }
 
