@@ -145,13 +145,20 @@ pub struct HourRow {
     pub readings: [Option<i64>; Reading::COUNT],
 }
 
+/// `Decimal::new(v, scale)` for a stored fixed-point value, from its parts
+/// (the same number and scale; `new` checks what storage already has).
+fn fixed(v: i64, scale: u32) -> Decimal {
+    let u = v.unsigned_abs();
+    Decimal::from_parts(u as u32, (u >> 32) as u32, 0, v < 0, scale)
+}
+
 impl HourRow {
     pub fn op_time_hr(&self) -> Decimal {
-        Decimal::new(self.op_time_centi, OP_TIME_SCALE)
+        fixed(self.op_time_centi, OP_TIME_SCALE)
     }
 
     pub fn reading(&self, r: Reading) -> Option<Decimal> {
-        self.readings[r.index()].map(|v| Decimal::new(v, READING_SCALE))
+        self.readings[r.index()].map(|v| fixed(v, READING_SCALE))
     }
 
     /// The first field that differs from `held`, for refusal messages.
@@ -222,6 +229,29 @@ pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
 
 #[cfg(test)]
 mod tests {
+    /// `fixed` is `Decimal::new` bit for bit, at the stored scales.
+    #[test]
+    fn fixed_is_decimal_new() {
+        for v in [
+            0,
+            1,
+            -1,
+            99,
+            100,
+            i64::MAX,
+            i64::MIN + 1,
+            4_294_967_296,
+            -7_000_000_000_123,
+        ] {
+            for scale in [super::OP_TIME_SCALE, super::READING_SCALE] {
+                assert_eq!(
+                    super::fixed(v, scale).serialize(),
+                    rust_decimal::Decimal::new(v, scale).serialize()
+                );
+            }
+        }
+    }
+
     use super::*;
     use proptest::prelude::*;
 

@@ -72,7 +72,10 @@ fn dry_fraction(h2o_pct: Decimal) -> Decimal {
 /// Source: 40 CFR 75 App. F Eq. F-1, `Eh = K · Ch · Qh` (K and variables
 /// verified, form from memory).
 pub fn so2_lb_per_hr_f1(so2_ppm_wet: Decimal, flow_scfh_wet: Decimal) -> LbPerHr {
-    LbPerHr(K_SO2_LB_PER_SCF_PPM * so2_ppm_wet * flow_scfh_wet)
+    LbPerHr(product(
+        product(K_SO2_LB_PER_SCF_PPM, so2_ppm_wet),
+        flow_scfh_wet,
+    ))
 }
 
 /// SO2 mass rate from a dry-basis concentration, wet flow and moisture.
@@ -80,7 +83,10 @@ pub fn so2_lb_per_hr_f1(so2_ppm_wet: Decimal, flow_scfh_wet: Decimal) -> LbPerHr
 /// Source: 40 CFR 75 App. F Eq. F-2, `Eh = K · Chp · Qhs · (100 − %H2O)/100`
 /// (K and variables verified, form from memory).
 pub fn so2_lb_per_hr_f2(so2_ppm_dry: Decimal, flow_scfh_wet: Decimal, h2o_pct: Decimal) -> LbPerHr {
-    LbPerHr(K_SO2_LB_PER_SCF_PPM * so2_ppm_dry * flow_scfh_wet * dry_fraction(h2o_pct))
+    LbPerHr(product(
+        product(product(K_SO2_LB_PER_SCF_PPM, so2_ppm_dry), flow_scfh_wet),
+        dry_fraction(h2o_pct),
+    ))
 }
 
 // ---------------------------------------------------------------------------
@@ -96,8 +102,10 @@ pub fn nox_lb_per_mmbtu_f5(
     f_dscf_per_mmbtu: Decimal,
 ) -> LbPerMmbtu {
     LbPerMmbtu(
-        K_NOX_LB_PER_SCF_PPM * nox_ppm_dry * f_dscf_per_mmbtu * O2_AMBIENT_PCT
-            / (O2_AMBIENT_PCT - o2_pct_dry),
+        product(
+            product(product(K_NOX_LB_PER_SCF_PPM, nox_ppm_dry), f_dscf_per_mmbtu),
+            O2_AMBIENT_PCT,
+        ) / (O2_AMBIENT_PCT - o2_pct_dry),
     )
 }
 
@@ -252,7 +260,10 @@ pub fn diluent_cap(kind: UnitKind) -> Option<DiluentCap> {
 /// Source: 40 CFR 75 App. F Eq. F-11, `Eh = K · Ch · Qh` (K verified, form
 /// from memory).
 pub fn co2_tons_per_hr_f11(co2_pct_wet: Decimal, flow_scfh_wet: Decimal) -> TonsPerHr {
-    TonsPerHr(K_CO2_TONS_PER_SCF_PCT * co2_pct_wet * flow_scfh_wet)
+    TonsPerHr(product(
+        product(K_CO2_TONS_PER_SCF_PCT, co2_pct_wet),
+        flow_scfh_wet,
+    ))
 }
 
 /// CO2 mass rate from a dry CO2 concentration, wet flow and moisture.
@@ -264,7 +275,10 @@ pub fn co2_tons_per_hr_f11_dry(
     flow_scfh_wet: Decimal,
     h2o_pct: Decimal,
 ) -> TonsPerHr {
-    TonsPerHr(K_CO2_TONS_PER_SCF_PCT * co2_pct_dry * flow_scfh_wet * dry_fraction(h2o_pct))
+    TonsPerHr(product(
+        product(product(K_CO2_TONS_PER_SCF_PCT, co2_pct_dry), flow_scfh_wet),
+        dry_fraction(h2o_pct),
+    ))
 }
 
 /// CO2 (dry) from O2 (dry); a negative result records 0.0 %.
@@ -352,8 +366,10 @@ pub fn heat_input_mmbtu_per_hr_f18(
     f_dscf_per_mmbtu: Decimal,
 ) -> MmbtuPerHr {
     MmbtuPerHr(
-        flow_scfh_wet * (HUNDRED - h2o_pct) * (O2_AMBIENT_PCT - o2_pct_dry)
-            / (HUNDRED * f_dscf_per_mmbtu * O2_AMBIENT_PCT),
+        product(
+            product(flow_scfh_wet, HUNDRED - h2o_pct),
+            O2_AMBIENT_PCT - o2_pct_dry,
+        ) / product(product(HUNDRED, f_dscf_per_mmbtu), O2_AMBIENT_PCT),
     )
 }
 
@@ -373,6 +389,33 @@ pub fn heat_input_floor(heat_input: MmbtuPerHr) -> MmbtuPerHr {
 // ---------------------------------------------------------------------------
 // Hourly masses
 
+/// `a × b`, exactly as `Decimal`'s `*` gives it, without its general
+/// multiply where the product is exact: both mantissas' product within 96
+/// bits and the scales' sum within 28 is the result `*` gives, digit for
+/// digit and scale for scale (`*` rounds only beyond those limits, and
+/// gives zero at scale 0, which is left to it). A proptest checks the two
+/// agree bit for bit.
+#[inline]
+pub fn product(a: Decimal, b: Decimal) -> Decimal {
+    let scale = a.scale() + b.scale();
+    let (ua, ub) = (a.mantissa().unsigned_abs(), b.mantissa().unsigned_abs());
+    // Mantissas within 64 bits: one widening multiply, no overflow.
+    if scale <= Decimal::MAX_SCALE && ua >> 64 == 0 && ub >> 64 == 0 {
+        let u = ua * ub;
+        if u != 0 && u < 1u128 << 96 {
+            let negative = a.is_sign_negative() != b.is_sign_negative();
+            return Decimal::from_parts(
+                u as u32,
+                (u >> 32) as u32,
+                (u >> 64) as u32,
+                negative,
+                scale,
+            );
+        }
+    }
+    a * b
+}
+
 /// 10^0, 10^1, 10^2.
 const POW10_UP_TO_2: [u128; 3] = [1, 10, 100];
 
@@ -386,15 +429,26 @@ const POW10_UP_TO_2: [u128; 3] = [1, 10, 100];
 /// operating time takes `*`. A proptest checks the two agree bit for bit.
 pub fn times_op_time(value: Decimal, op_time_hr: Decimal) -> Decimal {
     if op_time_hr.scale() != 2 || op_time_hr.mantissa() != 100 || value.is_zero() {
-        return value * op_time_hr;
+        return product(value, op_time_hr);
     }
-    let m = value.mantissa();
+    let u = value.mantissa().unsigned_abs();
     let s = value.scale();
-    let k = (0..=2u32.min(Decimal::MAX_SCALE - s))
-        .rev()
-        .find(|&k| m.unsigned_abs() * POW10_UP_TO_2[k as usize] < 1u128 << 96)
-        .unwrap_or(0);
-    Decimal::from_i128_with_scale(m * POW10_UP_TO_2[k as usize] as i128, s + k)
+    let fits = |k: u32| s + k <= Decimal::MAX_SCALE && u * POW10_UP_TO_2[k as usize] < 1u128 << 96;
+    let k = if fits(2) {
+        2
+    } else if fits(1) {
+        1
+    } else {
+        0
+    };
+    let u = u * POW10_UP_TO_2[k as usize];
+    Decimal::from_parts(
+        u as u32,
+        (u >> 32) as u32,
+        (u >> 64) as u32,
+        value.is_sign_negative(),
+        s + k,
+    )
 }
 
 /// SO2 mass of the hour: rate × operating time (the Eh · th term of 40 CFR 75 App. F Eq. F-3).

@@ -279,10 +279,13 @@ pub fn stats_of(values: &mut [Decimal]) -> Option<Stats> {
     stats_of_sorted(values)
 }
 
-/// [`stats_of`] of values already sorted: the mean sums them in this order.
+/// [`stats_of`] of values already sorted; the mean's sum is exact
+/// (src/exact_sum.rs), so the order of equal values does not matter.
 fn stats_of_sorted(sorted: &[Decimal]) -> Option<Stats> {
     let max = *sorted.last()?;
-    let sum: Decimal = sorted.iter().copied().sum();
+    let mut sum = crate::exact_sum::ExactSum::default();
+    sum.extend(sorted.iter().copied());
+    let sum = sum.value();
     let count = u32::try_from(sorted.len()).expect("lookbacks hold at most 2,160 values");
     Some(Stats {
         count,

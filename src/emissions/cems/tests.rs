@@ -756,4 +756,22 @@ proptest::proptest! {
         proptest::prop_assert_eq!(bits(nox_lb_f24(nox_rate, hi, t).0), bits(nox_rate.0 * hi.0 * t));
         proptest::prop_assert_eq!(bits(co2_tons(co2_rate, t).0), bits(co2_rate.0 * t));
     }
+
+    /// `product` is `*` bit for bit, for mantissas of every size and any
+    /// scales, zero and signs included.
+    #[test]
+    fn product_is_decimal_multiplication(
+        (am, bm) in (proptest::prelude::any::<i128>(), proptest::prelude::any::<i128>()),
+        (abits, bbits) in (0u32..=96, 0u32..=96),
+        (ascale, bscale) in (0u32..=28, 0u32..=28),
+    ) {
+        let cut = |m: i128, bits: u32| if bits == 0 { 0 } else { m % (1i128 << bits).min((1i128 << 96) - 1) };
+        let a = Decimal::from_i128_with_scale(cut(am, abits), ascale);
+        let b = Decimal::from_i128_with_scale(cut(bm, bbits), bscale);
+        // Beyond Decimal's range both panic alike (`product` falls back to `*`).
+        if let Some(expected) = a.checked_mul(b) {
+            proptest::prop_assert_eq!(product(a, b).serialize(), expected.serialize(), "{} × {}", a, b);
+        }
+    }
+
 }

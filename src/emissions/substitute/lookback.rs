@@ -2,16 +2,18 @@
 //! nearest-rank 90th and 95th percentiles and maximum of 40 CFR 75.33(b)
 //! and (c), of the whole lookback (SO2) or by load range (flow, NOx rate).
 //!
-//! [`stats_of`] is the reference: sort the `Decimal`s, sum them in sorted
-//! order, divide. The fast path here gives the same `Stats`, bit for bit,
-//! by sorting integer order keys instead of comparing `Decimal`s, and by
+//! [`stats_of`] is the reference: sort the `Decimal`s, sum them exactly
+//! (src/exact_sum.rs, so the order does not matter), divide. The fast path
+//! here gives the same `Stats`, bit for bit, by selecting the percentiles
+//! and maximum by integer order keys instead of sorting `Decimal`s, and by
 //! computing only the load ranges the period's hours can use. It falls back
 //! to the reference wherever it cannot show the results equal: a value too
 //! large for its key, or two equal values written differently (`5.0` and
-//! `5.00`), whose order `sort_unstable` leaves open and whose sum in another
-//! order could round differently.
+//! `5.00`) at a rank it picks, where the reference's pick is left open by
+//! `sort_unstable`.
 
-use super::{stats_of, stats_of_sorted, QaValue, Stats, LOAD_RANGES, POW10};
+use super::{stats_of, QaValue, Stats, LOAD_RANGES, POW10};
+use crate::exact_sum::ExactSum;
 use rust_decimal::Decimal;
 use std::collections::VecDeque;
 
@@ -28,48 +30,12 @@ fn recent(lookback: &VecDeque<QaValue>, oldest: i64) -> impl Iterator<Item = &Qa
     lookback.iter().filter(move |v| v.clock_hour > oldest)
 }
 
-/// Σ values as `Decimal`'s left fold from zero gives it, in any order,
-/// where no step of the fold can round or change scale: every value
-/// non-negative, all of one scale, and their sum within 96 bits. Every
-/// partial sum is then exact at that scale, and so is the fold's result.
-/// (One scale, because `Decimal` drops the scale of a zero operand in its
-/// small-number path: 0.00 + 0.9 is 0.9, so mixed scales with zeros depend
-/// on the order.) `None` otherwise.
-pub(super) fn exact_sum(values: &[(i128, Decimal)]) -> Option<Decimal> {
-    const LIMIT: i128 = 1 << 96;
-    let scale = values.first()?.1.scale();
-    let mut total: i128 = 0;
-    for &(_, v) in values {
-        if v.is_sign_negative() || v.scale() != scale {
-            return None;
-        }
-        // Every part is non-negative: once past the limit, the sum stays past it.
-        total += v.mantissa();
-        if total >= LIMIT {
-            return None;
-        }
-    }
-    Some(Decimal::from_i128_with_scale(total, scale))
-}
-
 /// [`stats_of`] of keyed values (not empty), or `None` where the result
-/// cannot be shown equal to it. Where [`exact_sum`] holds, the order of
-/// the sum does not matter and the percentiles and maximum are selected;
-/// otherwise the values are sorted by key and summed in that order, as
-/// the reference sums them.
-fn keyed_stats(entries: &mut [(i128, Decimal)], values: &mut Vec<Decimal>) -> Option<Stats> {
-    let Some(sum) = exact_sum(entries) else {
-        entries.sort_unstable_by_key(|e| e.0);
-        let written_alike = entries
-            .windows(2)
-            .all(|w| w[0].0 != w[1].0 || w[0].1.serialize() == w[1].1.serialize());
-        if !written_alike {
-            return None;
-        }
-        values.clear();
-        values.extend(entries.iter().map(|e| e.1));
-        return stats_of_sorted(values);
-    };
+/// cannot be shown equal to it: the percentiles and maximum are selected
+/// by key, and the exact sum is the same in any order.
+fn keyed_stats(entries: &mut [(i128, Decimal)]) -> Option<Stats> {
+    let mut sum = ExactSum::default();
+    sum.extend(entries.iter().map(|e| e.1));
     let n = entries.len();
     let rank = |pct: usize| (pct * n).div_ceil(100) - 1;
     let (r90, r95) = (rank(90), rank(95));
@@ -90,7 +56,7 @@ fn keyed_stats(entries: &mut [(i128, Decimal)], values: &mut Vec<Decimal>) -> Op
     let count = u32::try_from(n).expect("lookbacks hold at most 2,160 values");
     Some(Stats {
         count,
-        mean: sum / Decimal::from(count),
+        mean: sum.value() / Decimal::from(count),
         p90: picked[0].1,
         p95: picked[1].1,
         max: picked[2].1,
@@ -121,7 +87,7 @@ impl Scratch {
             return None;
         }
         if keyed {
-            if let Some(s) = keyed_stats(&mut self.keyed, &mut self.values) {
+            if let Some(s) = keyed_stats(&mut self.keyed) {
                 return Some(s);
             }
         }
@@ -173,7 +139,7 @@ impl Scratch {
         let mut out = [None; LOAD_RANGES];
         for k in (1..=LOAD_RANGES).filter(|&k| wanted[k]) {
             let group = &mut self.keyed[start[k]..start[k + 1]];
-            match keyed_stats(group, &mut self.values) {
+            match keyed_stats(group) {
                 Some(s) => out[k - 1] = Some(s),
                 None => return by_range_plain(lookback, oldest, &mut self.plain, &mut self.values),
             }

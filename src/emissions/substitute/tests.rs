@@ -861,33 +861,6 @@ proptest::proptest! {
         proptest::prop_assert_eq!(load_range_fast(load, max), load_range(load, max), "load {} max {}", load, max);
     }
 
-    /// Σ by `exact_sum`, where it answers, is `Decimal`'s own left fold bit for bit
-    /// (the mean of 40 CFR 75.33(b)/(c) sums the lookback this way).
-    #[test]
-    fn exact_sum_equals_the_decimal_fold(
-        small in proptest::collection::vec(any_decimal(1 << 40, 0.0), 1..50),
-        zeros in proptest::collection::vec((0u32..=28, 0usize..60), 0..4),
-        large in proptest::collection::vec(any_decimal(1 << 95, 0.1), 1..5),
-        mix in proptest::bool::ANY,
-    ) {
-        let mut values: Vec<(i128, Decimal)> = small.iter().map(|&v| (0, v)).collect();
-        if mix {
-            values.extend(large.iter().map(|&v| (0, v)));
-        }
-        // Zeros of any scale, anywhere (Decimal's small-number add drops a zero's scale).
-        for (scale, at) in zeros {
-            values.insert(at.min(values.len()), (0, Decimal::new(0, scale)));
-        }
-        // One scale throughout, the case the fast path takes.
-        let one_scale: Vec<(i128, Decimal)> = small.iter().map(|&v| (0, Decimal::from_i128_with_scale(v.mantissa(), 6))).collect();
-        let fold: Decimal = one_scale.iter().map(|e| e.1).sum();
-        proptest::prop_assert_eq!(lookback::exact_sum(&one_scale).map(|s| s.serialize()), Some(fold.serialize()));
-        let fold: Decimal = values.iter().map(|e| e.1).sum();
-        if let Some(sum) = lookback::exact_sum(&values) {
-            proptest::prop_assert_eq!(sum.serialize(), fold.serialize(), "{} vs {}", sum, fold);
-        }
-    }
-
     /// Lookback statistics by order key (nearest-rank percentiles of §72.2, mean and maximum of
     /// 40 CFR 75.33(b) Table 1 and (c) Table 2) equal `stats_of`'s, bit for bit: the whole lookback,
     /// and by load range every range an hour at a given range can use (its own, or the next
