@@ -262,12 +262,30 @@ struct UnitState {
     columns: u32,
     /// The same for the unit's hours already in the ledger.
     held_columns: u32,
-    /// Line of each hour seen in this file, per year (0 = not seen).
-    lines: HashMap<i32, Vec<u32>>,
-    /// Years in which the ledger already holds hours of this unit.
-    held_years: HashMap<i32, bool>,
+    /// Per year of this file: the year, its first hour, and the line of
+    /// each of its hours seen in this file (0 = not seen). A unit's rows
+    /// span few years, so a search from the latest beats hashing each row.
+    lines: Vec<(i32, i64, Vec<u32>)>,
+    /// Years in which the ledger already holds hours of this unit, or not.
+    held_years: Vec<(i32, bool)>,
     /// The block of this unit's rows being filled.
     block: BlockBuilder,
+}
+
+impl UnitState {
+    /// The first hour of `year` and the lines seen of its hours.
+    fn year_lines(&mut self, year: i32) -> (i64, &mut [u32]) {
+        let i = match self.lines.iter().rposition(|e| e.0 == year) {
+            Some(i) => i,
+            None => {
+                let start = days_from_civil(year, 1, 1) * 24;
+                self.lines.push((year, start, vec![0; HOURS_PER_YEAR_MAX]));
+                self.lines.len() - 1
+            }
+        };
+        let (_, start, slots) = &mut self.lines[i];
+        (*start, slots)
+    }
 }
 
 /// Import an hourly file: all rows or none.
@@ -517,8 +535,8 @@ pub fn import_named(
                                         .fold(0u32, |m, (i, _)| m | 1 << i)
                                 })
                                 .unwrap_or(0),
-                            lines: HashMap::new(),
-                            held_years: HashMap::new(),
+                            lines: Vec::new(),
+                            held_years: Vec::new(),
                             block: BlockBuilder::default(),
                         }),
                     };
@@ -535,11 +553,8 @@ pub fn import_named(
                             continue;
                         }
                     };
-                    let year_start = days_from_civil(year, 1, 1) * 24;
-                    let slot = &mut state
-                        .lines
-                        .entry(year)
-                        .or_insert_with(|| vec![0; HOURS_PER_YEAR_MAX])[(row.hour - year_start) as usize];
+                    let (year_start, slots) = state.year_lines(year);
+                    let slot = &mut slots[(row.hour - year_start) as usize];
                     if *slot != 0 {
                         errors.push(RowError::line(
                             line,
@@ -552,13 +567,16 @@ pub fn import_named(
                         continue;
                     }
                     *slot = u32::try_from(line).unwrap_or(u32::MAX);
-                    let held_year = match state.held_years.get(&year) {
-                        _ if first_load => false,
-                        Some(h) => *h,
-                        None => {
-                            let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
-                            state.held_years.insert(year, h);
-                            h
+                    let held_year = if first_load {
+                        false
+                    } else {
+                        match state.held_years.iter().rev().find(|e| e.0 == year) {
+                            Some(&(_, h)) => h,
+                            None => {
+                                let h = tx.holds_hours(state.unit_no, year_start, year_start + HOURS_PER_YEAR_MAX as i64)?;
+                                state.held_years.push((year, h));
+                                h
+                            }
                         }
                     };
                     let held = if held_year { held_hours.current(tx, state.unit_no, row.hour, batch_id)? } else { None };
