@@ -177,6 +177,48 @@ pub enum FixedError {
 /// Faster than going through `Decimal` for the hourly path; a value with
 /// more decimals than `scale` is refused, never rounded.
 pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
+    // The common case, at most 18 digits and one dot, in one pass without
+    // overflow checks. Anything else, and every refusal's reason but too
+    // many decimals, is the general loop's.
+    let bytes = text.as_bytes();
+    if !bytes.is_empty() && bytes.len() <= 19 && scale <= 18 {
+        let mut units = 0i64;
+        let mut dot = None;
+        let mut plain = true;
+        for (i, &b) in bytes.iter().enumerate() {
+            let d = b.wrapping_sub(b'0');
+            if d < 10 {
+                units = units * 10 + i64::from(d);
+            } else if b == b'.' && dot.is_none() {
+                dot = Some(i);
+            } else {
+                plain = false;
+                break;
+            }
+        }
+        let decimals = dot.map_or(0, |i| bytes.len() - i - 1) as u32;
+        // 19 bytes hold 19 digits only without a dot: leave those to the loop.
+        if plain && (dot.is_some() || bytes.len() <= 18) && bytes.len() > usize::from(dot.is_some())
+        {
+            let mut decimals = decimals;
+            // Zeros after the last significant decimal are exact.
+            while decimals > scale && units % 10 == 0 {
+                units /= 10;
+                decimals -= 1;
+            }
+            if decimals > scale {
+                return Err(FixedError::Scale(scale));
+            }
+            return units
+                .checked_mul(10i64.pow(scale - decimals))
+                .ok_or(FixedError::Decimal(DecimalError::TooLong));
+        }
+    }
+    parse_fixed_general(text, scale)
+}
+
+/// [`parse_fixed`] digit by digit, for any text.
+fn parse_fixed_general(text: &str, scale: u32) -> Result<i64, FixedError> {
     let bytes = text.as_bytes();
     let mut int_part: i64 = 0;
     let mut frac_digits = 0u32;
@@ -218,14 +260,45 @@ pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
             .unwrap_or(DecimalError::NotANumber)
             .into());
     }
-    int_part
-        .checked_mul(10i64.pow(scale - frac_digits))
+    10i64
+        .checked_pow(scale - frac_digits)
+        .and_then(|p| int_part.checked_mul(p))
         .ok_or(FixedError::Decimal(DecimalError::TooLong))
 }
 
 #[cfg(test)]
 mod fixed_tests {
     use super::*;
+
+    proptest::proptest! {
+        /// Whatever text: accepted exactly when the strict `Decimal` parser
+        /// accepts it and its value fits `scale` decimals and an i64, and
+        /// then the same number of 10^-scale units.
+        #[test]
+        fn fixed_agrees_with_the_decimal_parser(
+            text in "[0-9]{0,22}(\\.[0-9]{0,9})?|\\PC{0,8}",
+            scale in 0u32..=8,
+        ) {
+            let reference = parse_decimal(&text, false).ok().and_then(|d| {
+                let n = d.normalize();
+                if n.scale() > scale {
+                    return None;
+                }
+                let units = n.mantissa().checked_mul(10i128.pow(scale - n.scale()))?;
+                i64::try_from(units).ok()
+            });
+            proptest::prop_assert_eq!(parse_fixed(&text, scale).ok(), reference, "{:?}", text);
+        }
+
+        /// The fast path gives what the general loop gives, refusals included.
+        #[test]
+        fn fixed_fast_path_is_the_general_loop(
+            text in "[0-9]{0,20}(\\.[0-9]{0,12})?0{0,4}|[0-9.]{0,8}|\\PC{0,8}",
+            scale in 0u32..=20,
+        ) {
+            proptest::prop_assert_eq!(parse_fixed(&text, scale), parse_fixed_general(&text, scale), "{:?}", text);
+        }
+    }
 
     #[test]
     fn fixed_point_parses_exactly_and_refuses_what_it_cannot_hold() {
