@@ -45,8 +45,10 @@ impl Wide {
         zero
     }
 
-    fn is_negative(&self) -> bool {
-        self.high >> 127 == 1
+    /// Whether the value is negative, and its magnitude.
+    fn sign_and_magnitude(self) -> (bool, Wide) {
+        let negative = self.high >> 127 == 1;
+        (negative, if negative { self.negated() } else { self })
     }
 
     /// Divide a non-negative value by `d` (not zero), returning the remainder.
@@ -183,12 +185,7 @@ impl ExactSum {
     /// The exact total times `factor`.
     pub fn times(mut self, factor: u32) -> ExactSum {
         self.fold();
-        let negative = self.total.is_negative();
-        let magnitude = if negative {
-            self.total.negated()
-        } else {
-            self.total
-        };
+        let (negative, magnitude) = self.total.sign_and_magnitude();
         let (low, carry) = product(magnitude.low, u128::from(factor));
         let (high, _) = product(magnitude.high, u128::from(factor));
         let mut out = Wide { low, high };
@@ -208,12 +205,7 @@ impl ExactSum {
     pub fn value(&self) -> Decimal {
         let mut folded = *self;
         folded.fold();
-        let negative = folded.total.is_negative();
-        let magnitude = if negative {
-            folded.total.negated()
-        } else {
-            folded.total
-        };
+        let (negative, magnitude) = folded.total.sign_and_magnitude();
         let scale = match self.zero_scale {
             Some(s) if !self.nonzero => s,
             _ => self.scale,
