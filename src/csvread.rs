@@ -218,7 +218,7 @@ impl<R: BufRead> Reader<R> {
                 }
                 break;
             }
-            let (chunk, found) = match buf.iter().position(|&b| b == b'\n') {
+            let (chunk, found) = match memchr::memchr(b'\n', buf) {
                 Some(i) => (&buf[..=i], true),
                 None => (buf, false),
             };
@@ -367,6 +367,20 @@ impl<R: BufRead> Reader<R> {
             }
         };
         record.text.push_str(text);
+        // Without control characters (the usual case, told without a branch
+        // per byte) the fields are what lies between the commas.
+        let control = self.raw.iter().fold(false, |any, &b| {
+            any | ((b < 0x20) & (b != b'\t')) | (b == 0x7f)
+        });
+        if !control {
+            let mut start = 0usize;
+            for i in memchr::memchr_iter(b',', &self.raw) {
+                record.bounds.push((start, i));
+                start = i + 1;
+            }
+            record.bounds.push((start, self.raw.len()));
+            return self.check_plain(record, line, text);
+        }
         let mut start = 0usize;
         for (i, &b) in self.raw.iter().enumerate() {
             if b == b',' {
@@ -392,6 +406,11 @@ impl<R: BufRead> Reader<R> {
             }
         }
         record.bounds.push((start, self.raw.len()));
+        self.check_plain(record, line, text)
+    }
+
+    /// The limits and C1 control characters of a plain line split at its commas.
+    fn check_plain(&self, record: &mut Record, line: usize, text: &str) -> Result<(), RowError> {
         if record.bounds.len() > COLUMNS_MAX {
             return Err(RowError::line(
                 line,

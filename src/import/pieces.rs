@@ -42,11 +42,7 @@ pub struct Splitter<R> {
 }
 
 fn newlines(bytes: &[u8]) -> usize {
-    // In blocks, so that the compiler counts many bytes at a time.
-    bytes
-        .chunks(64)
-        .map(|c| c.iter().map(|&b| usize::from(b == b'\n')).sum::<usize>())
-        .sum()
+    memchr::memchr_iter(b'\n', bytes).count()
 }
 
 impl<R: BufRead> Splitter<R> {
@@ -70,7 +66,7 @@ impl<R: BufRead> Splitter<R> {
             return if *odd {
                 None
             } else {
-                part.iter().rposition(|&b| b == b'\n').map(|i| i + 1)
+                memchr::memrchr(b'\n', part).map(|i| i + 1)
             };
         }
         let mut last = None;
