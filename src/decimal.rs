@@ -181,7 +181,8 @@ pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
     // overflow checks. Anything else, and every refusal's reason but too
     // many decimals, is the general loop's.
     let bytes = text.as_bytes();
-    if !bytes.is_empty() && bytes.len() <= 19 && scale <= 18 {
+    // 18 bytes hold at most 18 digits: no i64 overflow.
+    if !bytes.is_empty() && bytes.len() <= 18 && scale <= 18 {
         let mut units = 0i64;
         let mut dot = None;
         let mut plain = true;
@@ -197,9 +198,8 @@ pub fn parse_fixed(text: &str, scale: u32) -> Result<i64, FixedError> {
             }
         }
         let decimals = dot.map_or(0, |i| bytes.len() - i - 1) as u32;
-        // 19 bytes hold 19 digits only without a dot: leave those to the loop.
-        if plain && (dot.is_some() || bytes.len() <= 18) && bytes.len() > usize::from(dot.is_some())
-        {
+        // A dot alone is no number: the loop says so.
+        if plain && bytes.len() > usize::from(dot.is_some()) {
             let mut decimals = decimals;
             // Zeros after the last significant decimal are exact.
             while decimals > scale && units % 10 == 0 {
@@ -298,6 +298,23 @@ mod fixed_tests {
         ) {
             proptest::prop_assert_eq!(parse_fixed(&text, scale), parse_fixed_general(&text, scale), "{:?}", text);
         }
+    }
+
+    #[test]
+    fn nineteen_digits_go_to_the_checked_loop() {
+        // Found by the proptest: 19 digits overflowed the unchecked pass.
+        assert_eq!(
+            parse_fixed("9999999999999999999", 0),
+            Err(FixedError::Decimal(DecimalError::TooLong))
+        );
+        assert_eq!(
+            parse_fixed("999999999999999999", 0),
+            Ok(999_999_999_999_999_999)
+        );
+        assert_eq!(
+            parse_fixed("1000000000000000000", 0),
+            Ok(1_000_000_000_000_000_000)
+        );
     }
 
     #[test]
