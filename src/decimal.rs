@@ -5,9 +5,38 @@
 //! with its own reason: exponents, `+`, spaces, thousands separators, `NaN`,
 //! `inf`, hexadecimal and non-ASCII digits. Nothing is ever rounded: a value
 //! with more digits than `Decimal` holds exactly is refused.
+//!
+//! Also the two integer pieces the fast paths share: powers of ten and a
+//! `Decimal` built from its mantissa's magnitude.
 
 use rust_decimal::Decimal;
 use thiserror::Error;
+
+/// 10^0 ..= 10^38, every power of ten a u128 holds.
+pub const POW10: [u128; 39] = {
+    let mut t = [1u128; 39];
+    let mut i = 1;
+    while i < t.len() {
+        t[i] = t[i - 1] * 10;
+        i += 1;
+    }
+    t
+};
+
+/// The `Decimal` whose mantissa has magnitude `u` (below 2^96) and the sign
+/// given, at `scale` (at most 28), from its parts: the checked constructors
+/// cost more on the hot paths than what they check.
+#[inline]
+pub fn from_magnitude(u: u128, negative: bool, scale: u32) -> Decimal {
+    debug_assert!(u < 1u128 << 96 && scale <= Decimal::MAX_SCALE);
+    Decimal::from_parts(
+        u as u32,
+        (u >> 32) as u32,
+        (u >> 64) as u32,
+        negative,
+        scale,
+    )
+}
 
 /// Most significant digits a `Decimal` holds without rounding.
 const DIGITS_MAX: usize = 28;

@@ -9,8 +9,10 @@
 //! [`ExactSum::value`] rounds it once, half to even, to the most digits a
 //! `Decimal` holds. Where the total fits without rounding, the result is
 //! what `Decimal` addition gives: the same digits and the same scale (the
-//! largest scale among the terms).
+//! largest scale among the non-zero terms; `Decimal` drops a zero
+//! operand's scale, so that 0.00 + 0.9 is 0.9).
 
+use crate::decimal::{from_magnitude, POW10};
 use rust_decimal::Decimal;
 
 /// Finest scale of a `Decimal`.
@@ -77,20 +79,6 @@ impl Wide {
     }
 }
 
-/// 10^k for k ≤ 38.
-fn pow10(k: u32) -> u128 {
-    const POW10: [u128; 39] = {
-        let mut t = [1u128; 39];
-        let mut i = 1;
-        while i < 39 {
-            t[i] = t[i - 1] * 10;
-            i += 1;
-        }
-        t
-    };
-    POW10[k as usize]
-}
-
 /// Terms a bucket takes before it is folded: each mantissa is below 2^96,
 /// so 2^30 of them stay below 2^126 in an i128.
 const FOLD_AT: u32 = 1 << 30;
@@ -106,8 +94,9 @@ fn product(a: u128, b: u128) -> (u128, u128) {
     (low, high)
 }
 
-/// An exact running total of `Decimal`s: exact for up to 2^33 terms
-/// below 2^96 · 10⁻²⁸ × 10²⁸, far more than the hours of any year.
+/// An exact running total of `Decimal`s. The folded total (each term below
+/// 2^190 units of 10⁻²⁸) stays within 256 bits for 2^64 terms, far more
+/// than the hours of any year.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct ExactSum {
     /// Σ mantissas of the terms of each scale since the last fold.
@@ -156,7 +145,7 @@ impl ExactSum {
     fn fold(&mut self) {
         for (s, bucket) in self.buckets.iter_mut().enumerate() {
             if *bucket != 0 {
-                let (low, high) = product(bucket.unsigned_abs(), pow10(SCALE_MAX - s as u32));
+                let (low, high) = product(bucket.unsigned_abs(), POW10[SCALE_MAX as usize - s]);
                 if *bucket < 0 {
                     self.total.sub(low, high);
                 } else {
@@ -215,11 +204,10 @@ impl ExactSum {
         let mut dropped = SCALE_MAX - scale;
         loop {
             if let Some(m) = rounded(magnitude, dropped).below_2_96() {
-                let m = i128::try_from(m).expect("below 2^96");
                 let scale = SCALE_MAX
                     .checked_sub(dropped)
                     .expect("a sum beyond the range of Decimal");
-                return Decimal::from_i128_with_scale(if negative { -m } else { m }, scale);
+                return from_magnitude(m, negative && m != 0, scale);
             }
             dropped += 1;
         }
@@ -236,7 +224,7 @@ fn rounded(mut value: Wide, digits: u32) -> Wide {
     let mut left = digits - 1;
     while left > 0 {
         let k = left.min(19);
-        sticky |= value.div_rem(pow10(k) as u64) != 0;
+        sticky |= value.div_rem(POW10[k as usize] as u64) != 0;
         left -= k;
     }
     let last = value.div_rem(10);

@@ -148,8 +148,7 @@ pub struct HourRow {
 /// `Decimal::new(v, scale)` for a stored fixed-point value, from its parts
 /// (the same number and scale; `new` checks what storage already has).
 fn fixed(v: i64, scale: u32) -> Decimal {
-    let u = v.unsigned_abs();
-    Decimal::from_parts(u as u32, (u >> 32) as u32, 0, v < 0, scale)
+    crate::decimal::from_magnitude(u128::from(v.unsigned_abs()), v < 0, scale)
 }
 
 impl HourRow {
@@ -229,6 +228,9 @@ pub fn hour_index(t: chrono::NaiveDateTime) -> i64 {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
     /// `fixed` is `Decimal::new` bit for bit, at the stored scales.
     #[test]
     fn fixed_is_decimal_new() {
@@ -243,17 +245,14 @@ mod tests {
             4_294_967_296,
             -7_000_000_000_123,
         ] {
-            for scale in [super::OP_TIME_SCALE, super::READING_SCALE] {
+            for scale in [OP_TIME_SCALE, READING_SCALE] {
                 assert_eq!(
-                    super::fixed(v, scale).serialize(),
+                    fixed(v, scale).serialize(),
                     rust_decimal::Decimal::new(v, scale).serialize()
                 );
             }
         }
     }
-
-    use super::*;
-    use proptest::prelude::*;
 
     proptest! {
         // The calendar arithmetic agrees with chrono's on every date it knows.

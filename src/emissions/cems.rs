@@ -14,6 +14,7 @@
 
 use super::constants::FFactors;
 use super::method::Diluent;
+use crate::decimal::{from_magnitude, POW10};
 use crate::site::{Rounding, UnitKind};
 use crate::units::{Lb, LbPerHr, LbPerMmbtu, Mmbtu, MmbtuPerHr, Tons, TonsPerHr};
 use rust_decimal::{Decimal, RoundingStrategy};
@@ -403,21 +404,11 @@ pub fn product(a: Decimal, b: Decimal) -> Decimal {
     if scale <= Decimal::MAX_SCALE && ua >> 64 == 0 && ub >> 64 == 0 {
         let u = ua * ub;
         if u != 0 && u < 1u128 << 96 {
-            let negative = a.is_sign_negative() != b.is_sign_negative();
-            return Decimal::from_parts(
-                u as u32,
-                (u >> 32) as u32,
-                (u >> 64) as u32,
-                negative,
-                scale,
-            );
+            return from_magnitude(u, a.is_sign_negative() != b.is_sign_negative(), scale);
         }
     }
     a * b
 }
-
-/// 10^0, 10^1, 10^2.
-const POW10_UP_TO_2: [u128; 3] = [1, 10, 100];
 
 /// `value × op_time_hr`, exactly as `Decimal`'s `*` gives it, without its
 /// general multiply where the hour is a full one written `1.00` (most hours).
@@ -433,7 +424,7 @@ pub fn times_op_time(value: Decimal, op_time_hr: Decimal) -> Decimal {
     }
     let u = value.mantissa().unsigned_abs();
     let s = value.scale();
-    let fits = |k: u32| s + k <= Decimal::MAX_SCALE && u * POW10_UP_TO_2[k as usize] < 1u128 << 96;
+    let fits = |k: u32| s + k <= Decimal::MAX_SCALE && u * POW10[k as usize] < 1u128 << 96;
     let k = if fits(2) {
         2
     } else if fits(1) {
@@ -441,14 +432,7 @@ pub fn times_op_time(value: Decimal, op_time_hr: Decimal) -> Decimal {
     } else {
         0
     };
-    let u = u * POW10_UP_TO_2[k as usize];
-    Decimal::from_parts(
-        u as u32,
-        (u >> 32) as u32,
-        (u >> 64) as u32,
-        value.is_sign_negative(),
-        s + k,
-    )
+    from_magnitude(u * POW10[k as usize], value.is_sign_negative(), s + k)
 }
 
 /// SO2 mass of the hour: rate × operating time (the Eh · th term of 40 CFR 75 App. F Eq. F-3).

@@ -38,6 +38,7 @@
 //!   26,280 clock hours before that hour are left out (§75.33).
 
 use super::cems::{self, CemsUnit, HourInput, HourResult, Resolved};
+use crate::decimal::POW10;
 use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use rust_decimal_macros::dec;
@@ -276,36 +277,18 @@ pub fn stats_of(values: &mut [Decimal]) -> Option<Stats> {
         return None;
     }
     values.sort_unstable();
-    stats_of_sorted(values)
-}
-
-/// [`stats_of`] of values already sorted; the mean's sum is exact
-/// (src/exact_sum.rs), so the order of equal values does not matter.
-fn stats_of_sorted(sorted: &[Decimal]) -> Option<Stats> {
-    let max = *sorted.last()?;
+    // The mean's sum is exact (src/exact_sum.rs): the order of equal values does not matter.
     let mut sum = crate::exact_sum::ExactSum::default();
-    sum.extend(sorted.iter().copied());
-    let sum = sum.value();
-    let count = u32::try_from(sorted.len()).expect("lookbacks hold at most 2,160 values");
+    sum.extend(values.iter().copied());
+    let count = u32::try_from(values.len()).expect("lookbacks hold at most 2,160 values");
     Some(Stats {
         count,
-        mean: sum / Decimal::from(count),
-        p90: percentile_nearest_rank(sorted, 90),
-        p95: percentile_nearest_rank(sorted, 95),
-        max,
+        mean: sum.value() / Decimal::from(count),
+        p90: percentile_nearest_rank(values, 90),
+        p95: percentile_nearest_rank(values, 95),
+        max: *values.last().expect("not empty"),
     })
 }
-
-/// 10^0 ..= 10^28.
-const POW10: [i128; 29] = {
-    let mut t = [1i128; 29];
-    let mut i = 1;
-    while i < t.len() {
-        t[i] = t[i - 1] * 10;
-        i += 1;
-    }
-    t
-};
 
 /// [`load_range`] in integers where that provably gives the same range,
 /// else by [`load_range`] itself: once per operating hour, so it matters.
@@ -317,8 +300,12 @@ const POW10: [i128; 29] = {
 /// and D below 10²⁶ the error is smaller than that, so the rounded quotient
 /// has the same ceiling ⌈N/D⌉. Negative loads take the `Decimal` path.
 pub fn load_range_fast(load_mw: Decimal, max_load_mw: Decimal) -> u8 {
-    const LIMIT: i128 = POW10[26];
-    let scaled = |m: i128, s: u32| POW10.get(s as usize).and_then(|p| m.checked_mul(*p));
+    const LIMIT: i128 = POW10[26] as i128;
+    let scaled = |m: i128, s: u32| {
+        POW10
+            .get(s as usize)
+            .and_then(|&p| m.checked_mul(p as i128))
+    };
     let n = scaled(load_mw.mantissa(), max_load_mw.scale() + 1);
     let d = scaled(max_load_mw.mantissa(), load_mw.scale());
     match (n, d) {

@@ -25,30 +25,19 @@ pub const REQUIRED: &[&str] = &["unit", "hour", "op_time"];
 /// Hours in a leap year: 366 days × 24.
 const HOURS_PER_YEAR_MAX: usize = 8784;
 
-/// The bytes read from the file and not yet hashed: the parsing thread
-/// reads, the writing thread hashes, so the two cores share the work.
-type Unhashed = std::sync::Arc<std::sync::Mutex<Vec<u8>>>;
-
-/// A reader that keeps a copy of what passes through it for hashing.
+/// A reader that hashes every byte it reads, in the order read, on the
+/// thread that reads (the one cutting the file into pieces).
 struct Hashing<R> {
     inner: R,
-    unhashed: Unhashed,
+    hasher: Sha256,
 }
 
 impl<R: Read> Read for Hashing<R> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
         let n = self.inner.read(buf)?;
-        self.unhashed
-            .lock()
-            .expect("no thread panics holding it")
-            .extend_from_slice(&buf[..n]);
+        self.hasher.update(&buf[..n]);
         Ok(n)
     }
-}
-
-/// Take the bytes read so far, in order, for the hasher.
-fn take(unhashed: &Unhashed) -> Vec<u8> {
-    std::mem::take(&mut *unhashed.lock().expect("no thread panics holding it"))
 }
 
 /// Where each column of the header sits.
@@ -402,24 +391,19 @@ fn parse_piece(layout: &Layout, piece: Piece) -> Chunk {
 }
 
 /// Cut the file into pieces and deal them out to the parsing threads in
-/// turn; runs on its own thread.
-/// Hashes every byte it reads, the header's too, so the writer need not.
+/// turn; runs on its own thread, which so also reads and hashes the file.
 fn deal_pieces<R: BufRead>(
     mut splitter: Splitter<R>,
-    unhashed: &Unhashed,
-    mut hasher: Sha256,
     to_parsers: Vec<std::sync::mpsc::SyncSender<Piece>>,
-) -> Sha256 {
+) {
     for k in 0.. {
         let Some(piece) = splitter.next_piece() else {
-            break;
+            return;
         };
-        hasher.update(take(unhashed));
         if to_parsers[k % to_parsers.len()].send(piece).is_err() {
-            break; // The writer stopped: nothing more is wanted.
+            return; // The writer stopped: nothing more is wanted.
         }
     }
-    hasher
 }
 
 /// Parsing threads beside the one that cuts the file and the one that writes.
@@ -443,12 +427,11 @@ pub fn import_named(
     }
     let file = std::fs::File::open(path)
         .map_err(|e| ImportError::Read(format!("{name}: cannot read: {e}")))?;
-    let unhashed = Unhashed::default();
     let mut input = BufReader::with_capacity(
         1 << 20,
         Hashing {
             inner: file,
-            unhashed: unhashed.clone(),
+            hasher: Sha256::new(),
         },
     );
     ledger.write(|tx| {
@@ -483,9 +466,8 @@ pub fn import_named(
         let splitter = Splitter::new(reader.into_inner(), lines_before, PIECE_BYTES);
         // The file's units in order of first appearance, by name.
         let mut file_units: HashMap<String, usize> = HashMap::new();
-        let written: Result<Sha256, ImportError> = std::thread::scope(|scope| {
+        let written: Result<(), ImportError> = std::thread::scope(|scope| {
             let layout = &layout;
-            let unhashed = &unhashed;
             let mut to_parsers = Vec::new();
             // Owned here, so an early return drops them and every thread stops.
             let mut from_parsers = Vec::new();
@@ -502,7 +484,7 @@ pub fn import_named(
                 to_parsers.push(send_piece);
                 from_parsers.push(chunks);
             }
-            let dealer = scope.spawn(move || deal_pieces(splitter, unhashed, Sha256::new(), to_parsers));
+            scope.spawn(move || deal_pieces(splitter, to_parsers));
             // Chunks come back in the order the pieces were dealt.
             for k in 0.. {
                 let Ok(chunk) = from_parsers[k % from_parsers.len()].recv() else {
@@ -632,11 +614,9 @@ pub fn import_named(
                     break;
                 }
             }
-            // Stop the parsers, so the dealer stops too, then take its digest.
-            drop(from_parsers);
-            Ok(dealer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic)))
+            Ok(())
         });
-        let mut hasher = written?;
+        written?;
         if !errors.is_empty() {
             errors.kept.sort_by_key(|e| e.line);
             let mut fe = FileErrors::new(&name, errors.kept);
@@ -664,8 +644,7 @@ pub fn import_named(
         if done.added + done.corrected == 0 {
             return Ok(done);
         }
-        hasher.update(take(&unhashed));
-        let sha256 = super::hex(&hasher.finalize());
+        let sha256 = super::hex(&input.get_ref().hasher.clone().finalize());
         let written = tx.insert_batch(&NewBatch {
             kind: "hourly",
             file_name: &name,

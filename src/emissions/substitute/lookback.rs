@@ -12,7 +12,8 @@
 //! `5.00`) at a rank it picks, where the reference's pick is left open by
 //! `sort_unstable`.
 
-use super::{stats_of, QaValue, Stats, LOAD_RANGES, POW10};
+use super::{stats_of, QaValue, Stats, LOAD_RANGES};
+use crate::decimal::POW10;
 use crate::exact_sum::ExactSum;
 use rust_decimal::Decimal;
 use std::collections::VecDeque;
@@ -22,7 +23,7 @@ use std::collections::VecDeque;
 /// (magnitudes below about 1.7 × 10^10).
 pub(super) fn order_key(v: Decimal) -> Option<i128> {
     v.mantissa()
-        .checked_mul(POW10[(Decimal::MAX_SCALE - v.scale()) as usize])
+        .checked_mul(POW10[(Decimal::MAX_SCALE - v.scale()) as usize] as i128)
 }
 
 /// The lookback values of clock hours after `oldest`.
