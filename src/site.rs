@@ -326,23 +326,24 @@ struct RawProgram {
     true_up: Field,
 }
 
-/// Maps byte offsets of the source to 1-based line numbers.
-/// Line numbers of byte offsets in the site file: the offset of every
-/// line break, searched by halves (a site of a thousand units asks for
-/// thousands of lines, so scanning from the start each time was quadratic).
-struct Lines {
+/// Maps byte offsets of a site file to 1-based line numbers: the offset of
+/// every line break, searched by halves (a site of a thousand units asks
+/// for thousands of lines, so scanning from the start each time was quadratic).
+pub(crate) struct Lines {
     breaks: Vec<usize>,
 }
 
 impl Lines {
-    fn new(source: &str) -> Lines {
+    /// From the file's bytes, so that a file which is not UTF-8 can name
+    /// the line of its first bad byte.
+    pub(crate) fn new(source: &[u8]) -> Lines {
         Lines {
-            breaks: memchr::memchr_iter(b'\n', source.as_bytes()).collect(),
+            breaks: memchr::memchr_iter(b'\n', source).collect(),
         }
     }
 
     /// The 1-based line holding `offset` (offsets past the end count every break).
-    fn at(&self, offset: usize) -> usize {
+    pub(crate) fn at(&self, offset: usize) -> usize {
         self.breaks.partition_point(|&b| b < offset) + 1
     }
 }
@@ -512,7 +513,7 @@ fn parse_true_up(s: &str) -> Result<(u32, u32), String> {
 
 /// Parse and validate a site file. All problems are returned together.
 pub fn parse(source: &str) -> Result<Site, Vec<SiteError>> {
-    let lines = Lines::new(source);
+    let lines = Lines::new(source.as_bytes());
     let raw: RawSite = toml::from_str(source).map_err(|e| {
         let line = e.span().map(|s| lines.at(s.start)).unwrap_or(1);
         vec![SiteError {

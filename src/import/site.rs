@@ -31,7 +31,7 @@ pub fn load(
     let fail = |errors: Vec<RowError>| FileErrors::new(&file.name, errors);
     let source = std::str::from_utf8(&file.bytes).map_err(|e| {
         fail(vec![RowError::line(
-            line_at(&file.bytes, e.valid_up_to()),
+            site::Lines::new(&file.bytes).at(e.valid_up_to()),
             "invalid UTF-8",
         )])
     })?;
@@ -123,8 +123,4 @@ pub fn load(
             units: site.units.len(),
         })
     })
-}
-
-fn line_at(bytes: &[u8], offset: usize) -> usize {
-    bytes[..offset].iter().filter(|&&b| b == b'\n').count() + 1
 }
